@@ -1,0 +1,1 @@
+"""olibra: odorant library database with shape and vibration similarity search."""

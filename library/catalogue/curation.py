@@ -1,0 +1,327 @@
+"""Adding, finding and editing materials; the odor vocabulary; the audit trail.
+
+Every function here works inside a session the caller opened (one transaction
+per user action); none commits on its own.
+"""
+
+from __future__ import annotations
+
+import csv
+import getpass
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from sqlalchemy import func, or_, select
+from sqlalchemy.orm import Session, selectinload
+
+from library.catalogue.models import (
+    MATERIAL_STATUSES,
+    PROVENANCE_KINDS,
+    AuditEntry,
+    Material,
+    MaterialOdor,
+    OdorDescriptor,
+    Provenance,
+    Synonym,
+)
+from library.errors import OlibraError
+from library.structures import StandardStructure, StructureError, check_cas, standardize
+
+SEED_DIR = Path(__file__).resolve().parents[2] / "seed_catalog"
+VOCABULARY_FILE = SEED_DIR / "odor_vocabulary.csv"
+CURATED_FIELDS = ("structure", "preferred_name", "synonyms", "cas_rn", "olfactive_family", "notes")
+MAX_NAME_CHARS = 200
+
+
+class CurationError(OlibraError, ValueError):
+    """A curation request that cannot be carried out as given."""
+
+
+def current_actor() -> str:
+    try:
+        return getpass.getuser()
+    except Exception:  # no login name in some containers
+        return "unknown"
+
+
+@dataclass(frozen=True)
+class Source:
+    """Provenance of a value: kind (measured, literature, from memory, computed, demo) and reference."""
+
+    kind: str
+    reference: str | None = None
+
+    @classmethod
+    def parse(cls, text: str | None, *, default: str | None = None) -> Source | None:
+        """Read 'from memory', 'demo', 'literature: J. Org. Chem. 12, 34 (1950)' and so on."""
+        text = (text or "").strip() or (default or "")
+        if not text:
+            return None
+        kind, _, reference = text.partition(":")
+        kind = kind.strip().lower()
+        if kind not in PROVENANCE_KINDS:
+            raise CurationError(
+                f"provenance {text!r} does not start with one of: {', '.join(PROVENANCE_KINDS)}")
+        reference = reference.strip() or None
+        if kind == "literature" and not reference:
+            raise CurationError(
+                "literature provenance needs a reference, e.g. 'literature: J. Agric. Food Chem. 50, 1 (2002)'")
+        return cls(kind, reference)
+
+    def __str__(self) -> str:
+        return f"{self.kind}: {self.reference}" if self.reference else self.kind
+
+
+@dataclass
+class OdorAssignment:
+    term: str
+    strength: float | None = None
+
+
+def parse_odor_list(text: str | None) -> list[OdorAssignment]:
+    """Read 'citrus|green:0.6' (terms separated by '|', optional ':strength' in 0-1)."""
+    assignments: list[OdorAssignment] = []
+    seen: set[str] = set()
+    for item in (text or "").split("|"):
+        item = item.strip()
+        if not item:
+            continue
+        term, _, strength_text = item.partition(":")
+        term = term.strip().lower()
+        strength = None
+        if strength_text.strip():
+            try:
+                strength = float(strength_text)
+            except ValueError:
+                raise CurationError(f"odor strength {strength_text.strip()!r} of {term!r} is not a number") from None
+            if not 0.0 <= strength <= 1.0:
+                raise CurationError(f"odor strength {strength} of {term!r} is outside 0-1")
+        if term in seen:
+            raise CurationError(f"odor descriptor {term!r} is given twice")
+        seen.add(term)
+        assignments.append(OdorAssignment(term, strength))
+    return assignments
+
+
+def format_odor_list(odors: list[MaterialOdor]) -> str:
+    parts = []
+    for odor in sorted(odors, key=lambda o: o.descriptor.term):
+        parts.append(odor.descriptor.term if odor.strength is None
+                     else f"{odor.descriptor.term}:{odor.strength:g}")
+    return "|".join(parts)
+
+
+@dataclass
+class MaterialDraft:
+    """Everything needed to add a material, checked but not yet stored."""
+
+    structure: StandardStructure
+    preferred_name: str
+    synonyms: list[str] = field(default_factory=list)
+    cas_rn: str | None = None
+    olfactive_family: str | None = None
+    notes: str | None = None
+    odors: list[OdorAssignment] = field(default_factory=list)
+    sources: dict[str, Source] = field(default_factory=dict)
+    odor_source: Source | None = None
+
+
+def _clean_name(name: str | None, what: str) -> str:
+    name = (name or "").strip()
+    if not name:
+        raise CurationError(f"{what} is empty; every material needs a name")
+    if len(name) > MAX_NAME_CHARS:
+        raise CurationError(f"{what} is {len(name)} characters long (limit {MAX_NAME_CHARS})")
+    if any(ord(c) < 32 for c in name):
+        raise CurationError(f"{what} {name[:40]!r} contains control characters")
+    return name
+
+
+def draft_material(structure_text: str, *, name: str, synonyms: list[str] | None = None,
+                   cas: str | None = None, family: str | None = None, notes: str | None = None,
+                   odors: str | list[OdorAssignment] | None = None,
+                   sources: dict[str, str | None] | None = None,
+                   input_format: str | None = None, canonical_tautomer: bool = False,
+                   max_heavy_atoms: int | None = None) -> MaterialDraft:
+    """Check every field of a new material; raise StructureError or CurationError on the first problem.
+
+    `sources` maps a field ('structure', 'cas_rn', 'odor', 'preferred_name', ...)
+    to provenance text; the structure and name default to 'from memory' only when
+    the caller passes that default explicitly.
+    """
+    kwargs = {} if max_heavy_atoms is None else {"max_heavy_atoms": max_heavy_atoms}
+    structure = standardize(structure_text, input_format=input_format,
+                            canonical_tautomer=canonical_tautomer, **kwargs)
+    draft = MaterialDraft(structure=structure, preferred_name=_clean_name(name, "name"))
+    draft.synonyms = []
+    for synonym in synonyms or []:
+        synonym = _clean_name(synonym, "synonym")
+        if synonym != draft.preferred_name and synonym not in draft.synonyms:
+            draft.synonyms.append(synonym)
+    draft.cas_rn = check_cas(cas) if cas and cas.strip() else None
+    draft.olfactive_family = (family or "").strip().lower() or None
+    draft.notes = (notes or "").strip() or None
+    draft.odors = parse_odor_list(odors) if isinstance(odors, (str, type(None))) else list(odors)
+    for key, text in (sources or {}).items():
+        source = Source.parse(text)
+        if source is None:
+            continue
+        if key == "odor":
+            draft.odor_source = source
+        else:
+            draft.sources[key] = source
+    if draft.odors and draft.odor_source is None:
+        raise CurationError("odor descriptors need a source (e.g. 'from memory', 'measured: panel 2026-03')")
+    if draft.cas_rn and "cas_rn" not in draft.sources:
+        raise CurationError("a CAS RN needs a source (e.g. 'from memory' or 'literature: ...')")
+    if "structure" not in draft.sources:
+        raise CurationError("the structure needs a source (e.g. 'from memory' or 'literature: ...')")
+    return draft
+
+
+@dataclass(frozen=True)
+class AddOutcome:
+    material: Material
+    added: bool  # False when the structure was already in the catalogue
+    message: str
+
+
+def find_by_inchikey(session: Session, inchikey: str) -> Material | None:
+    return session.scalar(select(Material).where(Material.inchikey == inchikey))
+
+
+def vocabulary(session: Session) -> dict[str, OdorDescriptor]:
+    return {d.term: d for d in session.scalars(select(OdorDescriptor))}
+
+
+def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = None,
+                 known_terms: dict[str, OdorDescriptor] | None = None) -> AddOutcome:
+    """Store a checked draft, or report the existing material with the same InChIKey."""
+    actor = actor or current_actor()
+    existing = find_by_inchikey(session, draft.structure.inchikey)
+    if existing is not None:
+        return AddOutcome(existing, False,
+                          f"already present as #{existing.id} {existing.preferred_name} "
+                          f"(InChIKey {existing.inchikey})")
+    clash = session.scalar(select(Material).where(Material.preferred_name == draft.preferred_name))
+    if clash is not None:
+        raise CurationError(
+            f"name {draft.preferred_name!r} is already used by #{clash.id} with a different structure "
+            f"({clash.smiles}); choose another name")
+    if draft.cas_rn:
+        clash = session.scalar(select(Material).where(Material.cas_rn == draft.cas_rn))
+        if clash is not None:
+            raise CurationError(
+                f"CAS RN {draft.cas_rn} is already used by #{clash.id} {clash.preferred_name} "
+                "with a different structure; check the number or the structure")
+    terms = known_terms if known_terms is not None else vocabulary(session)
+    unknown = [o.term for o in draft.odors if o.term not in terms]
+    if unknown:
+        raise CurationError(
+            f"odor descriptor(s) {', '.join(unknown)} not in the vocabulary; "
+            "see `olibra vocabulary list` or add them with `olibra vocabulary add`")
+    s = draft.structure
+    material = Material(
+        preferred_name=draft.preferred_name, cas_rn=draft.cas_rn, smiles=s.smiles, molfile=s.molfile,
+        inchi=s.inchi, inchikey=s.inchikey, formula=s.formula,
+        average_mass_g_per_mol=s.average_mass, monoisotopic_mass_da=s.monoisotopic_mass,
+        heavy_atom_count=s.heavy_atom_count, stereo_status=s.stereo_status,
+        unassigned_stereo_count=s.unassigned_stereo_count,
+        olfactive_family=draft.olfactive_family, notes=draft.notes, status="active", restricted=False,
+    )
+    material.synonyms = [Synonym(name=n) for n in draft.synonyms]
+    material.provenance = [Provenance(field=f, kind=src.kind, reference=src.reference)
+                           for f, src in sorted(draft.sources.items())]
+    odor_source = draft.odor_source or Source("from memory")
+    material.odors = [MaterialOdor(descriptor=terms[o.term], strength=o.strength,
+                                   source_kind=odor_source.kind, source_reference=odor_source.reference)
+                      for o in draft.odors]
+    session.add(material)
+    session.flush()
+    session.add(AuditEntry(actor=actor, action="create", entity="material", entity_id=material.id,
+                           new_value=f"{material.preferred_name} {material.smiles}"))
+    return AddOutcome(material, True, f"added #{material.id} {material.preferred_name}")
+
+
+def find_material(session: Session, key: str) -> Material:
+    """Find one material by id ('12' or '#12'), name, synonym, CAS RN or InChIKey (case-insensitive)."""
+    key = (key or "").strip()
+    if not key:
+        raise CurationError("give a material: id, name, synonym, CAS RN or InChIKey")
+    options = selectinload(Material.synonyms), selectinload(Material.odors).selectinload(MaterialOdor.descriptor), \
+        selectinload(Material.provenance)
+    number = key[1:] if key.startswith("#") else key
+    if number.isdigit():
+        found = session.get(Material, int(number), options=options)
+        if found is not None:
+            return found
+    lowered = key.lower()
+    candidates = session.scalars(
+        select(Material).options(*options).where(or_(
+            func.lower(Material.preferred_name) == lowered,
+            Material.cas_rn == key,
+            Material.inchikey == key.upper(),
+            Material.id.in_(select(Synonym.material_id).where(func.lower(Synonym.name) == lowered)),
+        ))).unique().all()
+    if len(candidates) == 1:
+        return candidates[0]
+    if len(candidates) > 1:
+        names = ", ".join(f"#{m.id} {m.preferred_name}" for m in candidates)
+        raise CurationError(f"{key!r} matches several materials ({names}); use the id")
+    raise CurationError(f"no material matches {key!r}; try `olibra list` to see names and ids")
+
+
+def audit(session: Session, *, actor: str, action: str, material: Material, field_name: str,
+          old, new) -> None:
+    session.add(AuditEntry(actor=actor, action=action, entity="material", entity_id=material.id,
+                           field=field_name, old_value=None if old is None else str(old),
+                           new_value=None if new is None else str(new)))
+
+
+def set_status(session: Session, material: Material, status: str, *, actor: str | None = None) -> None:
+    if status not in MATERIAL_STATUSES:
+        raise CurationError(f"status {status!r} is not one of {', '.join(MATERIAL_STATUSES)}")
+    if material.status != status:
+        audit(session, actor=actor or current_actor(), action="update", material=material,
+              field_name="status", old=material.status, new=status)
+        material.status = status
+
+
+def set_restricted(session: Session, material: Material, restricted: bool, *, actor: str | None = None) -> None:
+    if material.restricted != restricted:
+        audit(session, actor=actor or current_actor(), action="update", material=material,
+              field_name="restricted", old=material.restricted, new=restricted)
+        material.restricted = restricted
+
+
+def add_descriptor(session: Session, term: str, *, family: str | None = None,
+                   description: str | None = None, actor: str | None = None) -> OdorDescriptor:
+    term = (term or "").strip().lower()
+    if not term or len(term) > 60 or any(c in term for c in "|:,"):
+        raise CurationError(f"odor descriptor {term!r} must be 1-60 characters without '|', ':' or ','")
+    existing = session.scalar(select(OdorDescriptor).where(OdorDescriptor.term == term))
+    if existing is not None:
+        return existing
+    descriptor = OdorDescriptor(term=term, family=(family or "").strip().lower() or None,
+                                description=(description or "").strip() or None)
+    session.add(descriptor)
+    session.flush()
+    session.add(AuditEntry(actor=actor or current_actor(), action="create", entity="odor_descriptor",
+                           entity_id=descriptor.id, new_value=term))
+    return descriptor
+
+
+def load_vocabulary(session: Session, path: Path = VOCABULARY_FILE) -> int:
+    """Add the terms of a vocabulary CSV (term,family,description) not yet present; returns how many."""
+    if not path.exists():
+        return 0
+    known = vocabulary(session)
+    added = 0
+    with path.open(encoding="utf-8", newline="") as handle:
+        for row in csv.DictReader(handle):
+            term = (row.get("term") or "").strip().lower()
+            if term and term not in known:
+                known[term] = add_descriptor(session, term, family=row.get("family"),
+                                             description=row.get("description"), actor="olibra init")
+                added += 1
+    return added
