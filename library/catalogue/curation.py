@@ -124,6 +124,7 @@ class MaterialDraft:
     odors: list[OdorAssignment] = field(default_factory=list)
     sources: dict[str, Source] = field(default_factory=dict)
     odor_source: Source | None = None
+    status: str = "active"
 
 
 def _clean_name(name: str | None, what: str) -> str:
@@ -220,6 +221,8 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
         raise CurationError(
             f"odor descriptor(s) {', '.join(unknown)} not in the vocabulary; "
             "see `olibra vocabulary list` or add them with `olibra vocabulary add`")
+    if draft.status not in MATERIAL_STATUSES:
+        raise CurationError(f"status {draft.status!r} is not one of {', '.join(MATERIAL_STATUSES)}")
     s = draft.structure
     material = Material(
         preferred_name=draft.preferred_name, cas_rn=draft.cas_rn, smiles=s.smiles, molfile=s.molfile,
@@ -227,7 +230,7 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
         average_mass_g_per_mol=s.average_mass, monoisotopic_mass_da=s.monoisotopic_mass,
         heavy_atom_count=s.heavy_atom_count, stereo_status=s.stereo_status,
         unassigned_stereo_count=s.unassigned_stereo_count,
-        olfactive_family=draft.olfactive_family, notes=draft.notes, status="active", restricted=False,
+        olfactive_family=draft.olfactive_family, notes=draft.notes, status=draft.status, restricted=False,
     )
     material.synonyms = [Synonym(name=n) for n in draft.synonyms]
     material.provenance = [Provenance(field=f, kind=src.kind, reference=src.reference)

@@ -56,6 +56,9 @@ def describe_url(url: str) -> str:
 
 
 def _set_sqlite_pragmas(dbapi_connection, _record) -> None:
+    # Let SQLAlchemy, not the sqlite3 module, decide where transactions begin, so
+    # that rollbacks and savepoints work (the recipe from SQLAlchemy's SQLite notes).
+    dbapi_connection.isolation_level = None
     cursor = dbapi_connection.cursor()
     cursor.execute("PRAGMA foreign_keys=ON")
     cursor.execute(f"PRAGMA busy_timeout={SQLITE_BUSY_TIMEOUT_MS}")
@@ -89,6 +92,7 @@ def make_engine(url: str, *, create_folder: bool = False) -> Engine:
                              "for PostgreSQL install olibra[postgres]") from None
     if engine.dialect.name == "sqlite":
         event.listen(engine, "connect", _set_sqlite_pragmas)
+        event.listen(engine, "begin", lambda connection: connection.exec_driver_sql("BEGIN"))
     return engine
 
 

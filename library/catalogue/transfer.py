@@ -41,7 +41,8 @@ from library.errors import OlibraError
 from library.structures import StructureError
 
 CSV_COLUMNS = ("name", "synonyms", "cas", "smiles", "inchi", "formula", "family", "odor",
-               "structure_source", "cas_source", "odor_source", "name_source", "notes")
+               "structure_source", "cas_source", "odor_source", "name_source", "notes", "inchikey",
+               "status")
 EXPORT_COLUMNS = ("name", "synonyms", "cas", "smiles", "formula", "family", "odor",
                   "structure_source", "cas_source", "odor_source", "name_source", "notes", "inchikey",
                   "status")
@@ -156,12 +157,15 @@ def read_csv_rows(text: str, label: str = "file") -> list[InputRow]:
 
 
 def read_sdf_rows(text: str, label: str = "file") -> list[InputRow]:
-    records = [r for r in text.replace("\r\n", "\n").split("$$$$") if r.strip()]
+    pieces = text.replace("\r\n", "\n").split("$$$$")
+    # Each record after a '$$$$' line starts after that line's newline; the
+    # molfile's own first line (the title) may be blank and must be kept.
+    records = [p if i == 0 else p.removeprefix("\n") for i, p in enumerate(pieces)]
+    records = [r for r in records if r.strip()]
     if not records:
         raise ImportFileError(f"{label} holds no SDF records")
     rows: list[InputRow] = []
     for number, record in enumerate(records, start=1):
-        record = record.lstrip("\n")
         block, _, data = record.partition("M  END")
         fields: dict[str, str] = {}
         if not _:
@@ -213,13 +217,23 @@ def _check_formula(row: InputRow, structure_formula: str) -> None:
         raise CurationError(f"formula {given} does not match the structure's {structure_formula}")
 
 
+def _check_inchikey(row: InputRow, structure_inchikey: str) -> None:
+    given = row.fields.get("inchikey", "").strip().upper()
+    if given and given != structure_inchikey:
+        raise CurationError(
+            f"InChIKey {given} does not match the structure's {structure_inchikey}; "
+            "the structure or the key was changed by hand")
+
+
 def import_rows(session: Session, rows: Iterable[InputRow], *, keep_good: bool = False,
                 actor: str | None = None, max_heavy_atoms: int | None = None,
+                default_structure_source: str | None = None,
                 canonical_tautomer: bool = False,
                 progress: Callable[[int], None] | None = None) -> ImportReport:
     """Import rows inside the caller's transaction; the caller commits only if `report.committed`.
 
-    Each row is stored inside a savepoint so a row that fails at the database
+    Rows without a structure_source take `default_structure_source` (e.g. 'from
+    memory') when given; otherwise they are rejected. Each row is stored inside a savepoint so a row that fails at the database
     (a unique constraint, say) is rolled back alone.
     """
     report = ImportReport()
@@ -236,11 +250,13 @@ def import_rows(session: Session, rows: Iterable[InputRow], *, keep_good: bool =
                 cas=row.fields.get("cas"), family=row.fields.get("family"), notes=row.fields.get("notes"),
                 odors=row.fields.get("odor"), input_format=row.structure_format,
                 canonical_tautomer=canonical_tautomer, max_heavy_atoms=max_heavy_atoms,
-                sources={"structure": row.fields.get("structure_source"),
+                sources={"structure": row.fields.get("structure_source") or default_structure_source,
                          "cas_rn": row.fields.get("cas_source"),
                          "odor": row.fields.get("odor_source"),
                          "preferred_name": row.fields.get("name_source")})
             _check_formula(row, draft.structure.formula)
+            _check_inchikey(row, draft.structure.inchikey)
+            draft.status = row.fields.get("status", "").strip().lower() or "active"
             key = draft.structure.inchikey
             if key in seen_in_file:
                 report.rows.append(RowOutcome(row.row, name, "present",

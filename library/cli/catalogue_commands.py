@@ -141,6 +141,7 @@ def cmd_import(args) -> int:
             report = transfer.import_rows(session, rows, keep_good=args.keep_good,
                                           max_heavy_atoms=args.max_heavy_atoms,
                                           canonical_tautomer=args.canonical_tautomer,
+                                          default_structure_source=args.structure_source,
                                           progress=bar.update)
             if not report.committed:
                 outer.rollback()
@@ -242,6 +243,9 @@ def register(commands) -> None:
                    help="store the good rows even when some rows are rejected")
     p.add_argument("--verbose", action="store_true", help="also list every added row")
     p.add_argument("--quiet", action="store_true", help="print only the summary")
+    p.add_argument("--structure-source", metavar="PROVENANCE",
+                   help="provenance for rows without a structure_source column value, "
+                        "e.g. 'from memory' or 'measured: in-house NMR'")
     p.add_argument("--canonical-tautomer", action="store_true")
     p.add_argument("--max-heavy-atoms", type=int, default=None)
     p.set_defaults(handler=cmd_import)

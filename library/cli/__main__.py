@@ -1,0 +1,5 @@
+import sys
+
+from library.cli import main
+
+sys.exit(main())
