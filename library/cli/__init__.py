@@ -8,6 +8,7 @@ line (OLIBRA_DEBUG=1 shows the traceback).
 from __future__ import annotations
 
 import argparse
+import importlib
 import os
 import sys
 import traceback
@@ -29,8 +30,6 @@ class ArgumentParser(argparse.ArgumentParser):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from library.cli import catalogue_commands
-
     parser = ArgumentParser(
         prog="olibra",
         description="Odorant library database with shape and vibration similarity search.")
@@ -41,15 +40,14 @@ def build_parser() -> argparse.ArgumentParser:
                         help="use ./catalogue.sqlite in the working directory as the default catalogue")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=ArgumentParser)
     commands.required = True
-    catalogue_commands.register(commands)
-    for module_name in OPTIONAL_COMMAND_MODULES:
-        module = __import__(f"library.cli.{module_name}", fromlist=["register"])
+    for module_name in COMMAND_MODULES:
+        module = importlib.import_module(f"library.cli.{module_name}")
         module.register(commands)
     return parser
 
 
-# Command modules added by later capabilities register themselves here.
-OPTIONAL_COMMAND_MODULES: list[str] = []
+# One module per area; each has register(commands) adding its subcommands.
+COMMAND_MODULES = ["catalogue_commands", "compute_commands"]
 
 
 def main(argv: list[str] | None = None) -> int:

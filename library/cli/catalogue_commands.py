@@ -2,17 +2,17 @@
 
 from __future__ import annotations
 
+import json
 import sys
 from pathlib import Path
 
 from sqlalchemy import func, select
 from sqlalchemy.orm import selectinload
-from tqdm import tqdm
 
 from library.catalogue import curation, transfer
 from library.catalogue.database import Catalogue, describe_url, initialize, resolve_url
 from library.catalogue.models import AuditEntry, ComputedRecord, Material, MaterialOdor, OdorDescriptor, PairFlag
-from library.cli.output import FORMATS, emit
+from library.cli.output import FORMATS, emit, progress_bar
 from library.errors import OlibraError
 
 PROGRESS_MIN_ROWS = 20
@@ -84,10 +84,10 @@ def cmd_show(args) -> int:
         records = session.scalars(select(ComputedRecord).where(ComputedRecord.material_id == m.id)
                                   .order_by(ComputedRecord.kind)).all()
         for record in records:
+            fresh = record.structure_inchikey == m.inchikey and record.engine_version in current_versions()
             lines.append(f"  {record.kind:<15} {record.engine_name} {record.engine_version} "
-                         f"(computed {record.computed_at:%Y-%m-%d %H:%M})")
-        for section in SHOW_SECTIONS:
-            lines.extend(section(session, m))
+                         f"(computed {record.computed_at:%Y-%m-%d %H:%M})" + ("" if fresh else "  [stale]"))
+            lines.extend(f"    {line}" for line in summary_lines(json.loads(record.summary_json or "{}")))
         flags = session.scalars(select(PairFlag).where(
             (PairFlag.material_a_id == m.id) | (PairFlag.material_b_id == m.id))).all()
         for flag in flags:
@@ -104,8 +104,28 @@ def cmd_show(args) -> int:
     return 0
 
 
-# Later capabilities (shape, vibration) append functions (session, material) -> list[str].
-SHOW_SECTIONS: list = []
+def current_versions() -> set[str]:
+    from library import computations
+
+    versions = set()
+    for engine in computations.VIBRATION_ENGINES:
+        versions |= {s.engine_version for s in computations.stamps(computations.Plan(vibration_engine=engine))}
+    return versions
+
+
+def summary_lines(summary: dict) -> list[str]:
+    """A computed record's summary as short 'name  value' lines."""
+    lines = []
+    for key, value in summary.items():
+        if isinstance(value, float):
+            text = f"{value:.4g}"
+        elif isinstance(value, list):
+            shown = [f"{v:.0f}" if isinstance(v, float) else str(v) for v in value[:12]]
+            text = ", ".join(shown) + (" ..." if len(value) > 12 else "")
+        else:
+            text = str(value)
+        lines.append(f"{key.replace('_', ' '):<22}{text}")
+    return lines
 
 
 def cmd_list(args) -> int:
@@ -134,8 +154,8 @@ def cmd_list(args) -> int:
 def cmd_import(args) -> int:
     catalogue = open_catalogue(args)
     rows = transfer.read_rows(args.file)
-    bar = tqdm(total=len(rows), desc="importing", unit="row", file=sys.stderr,
-               disable=len(rows) < PROGRESS_MIN_ROWS or args.quiet)
+    bar = progress_bar(len(rows), "importing", unit="row",
+                       enabled=len(rows) >= PROGRESS_MIN_ROWS and not args.quiet)
     with catalogue.sessions() as session:
         with session.begin() as outer:
             report = transfer.import_rows(session, rows, keep_good=args.keep_good,

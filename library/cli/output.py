@@ -39,3 +39,11 @@ def emit(rows: Sequence[dict], columns: Sequence[str], fmt: str = "table", *,
     out.write("  ".join("-" * w for w in widths) + "\n")
     for row in texts:
         out.write("  ".join(t.ljust(w) for t, w in zip(row, widths)).rstrip() + "\n")
+
+
+def progress_bar(total: int, description: str, *, unit: str, enabled: bool = True):
+    """A tqdm bar on stderr, shown only to a person at a terminal."""
+    from tqdm import tqdm
+
+    return tqdm(total=total, desc=description, unit=unit, file=sys.stderr,
+                disable=not (enabled and sys.stderr.isatty()))

@@ -1,0 +1,140 @@
+"""Long computations over the catalogue, in worker processes.
+
+Workers compute; only the parent process writes. Each finished material is
+committed in its own transaction (all its records or none), so an interrupted
+run (Ctrl-C) leaves no half-written rows and the next run resumes with the
+materials still missing or stale.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+import signal
+import time
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from dataclasses import dataclass, field
+from typing import Callable, Iterable
+
+from sqlalchemy import select
+
+from library.catalogue.curation import find_material
+from library.catalogue.database import Catalogue
+from library.catalogue.models import Material
+from library.catalogue.records import EngineStamp, record_state, save_record
+
+# Worker result: for each kind, (arrays, summary); or an error message.
+WorkerResult = dict[str, tuple[dict, dict]]
+
+
+@dataclass
+class JobReport:
+    planned: int = 0
+    done: int = 0
+    failures: list[tuple[int, str, str]] = field(default_factory=list)  # (material id, name, reason)
+    elapsed_s: float = 0.0
+    interrupted: bool = False
+
+    @property
+    def rate_per_s(self) -> float:
+        return self.done / self.elapsed_s if self.elapsed_s > 0 else 0.0
+
+    def summary(self) -> str:
+        text = (f"{self.done} of {self.planned} material(s) computed in {self.elapsed_s:.1f} s"
+                f" ({self.rate_per_s:.2f} per second), {len(self.failures)} failed")
+        if self.interrupted:
+            text += "; interrupted: finished materials were saved, run the command again to resume"
+        return text
+
+
+def _worker_setup() -> None:
+    """Workers leave Ctrl-C to the parent and use one thread each (the parent runs one worker per core)."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    for variable in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ[variable] = "1"
+
+
+def _guarded(worker: Callable[[str], WorkerResult], smiles: str):
+    """Run the worker, turning a refusal (ValueError) into a message instead of an exception."""
+    started = time.perf_counter()
+    try:
+        result = worker(smiles)
+    except ValueError as exc:
+        return None, str(exc) or type(exc).__name__, time.perf_counter() - started
+    except Exception as exc:  # a bug or an engine crash: report it per material, keep going
+        return None, f"internal error {type(exc).__name__}: {exc}", time.perf_counter() - started
+    return result, None, time.perf_counter() - started
+
+
+def select_materials(catalogue: Catalogue, stamps: list[EngineStamp], *, which: str = "stale",
+                     keys: Iterable[str] = ()) -> list[tuple[int, str, str]]:
+    """(id, name, smiles) of the materials to compute: 'stale' (missing or out of date), 'all', or `keys`."""
+    with catalogue.reading() as session:
+        keys = list(keys)
+        if keys:
+            chosen = {find_material(session, key).id for key in keys}
+        elif which == "all":
+            chosen = set(session.scalars(select(Material.id).where(Material.status == "active")))
+        elif which == "stale":
+            chosen = set()
+            for stamp in stamps:
+                chosen |= {i for i, state in record_state(session, stamp).items() if state != "current"}
+        else:
+            raise ValueError(f"unknown selection {which!r}; use 'stale' or 'all'")
+        rows = session.execute(select(Material.id, Material.preferred_name, Material.smiles)
+                               .where(Material.id.in_(chosen)).order_by(Material.id)).all()
+    return [tuple(r) for r in rows]
+
+
+def _store(catalogue: Catalogue, material_id: int, smiles: str, stamps: list[EngineStamp],
+           result: WorkerResult, elapsed_s: float) -> bool:
+    with catalogue.transaction() as session:
+        material = session.get(Material, material_id)
+        if material is None or material.smiles != smiles:
+            return False  # deleted or edited while we computed: leave it for the next run
+        for stamp in stamps:
+            arrays, summary = result[stamp.kind]
+            save_record(session, material, stamp, arrays, summary, elapsed_s=elapsed_s)
+    return True
+
+
+def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str], WorkerResult],
+        materials: list[tuple[int, str, str]], *, processes: int | None = None,
+        progress: Callable[[int], None] | None = None) -> JobReport:
+    """Compute `worker(smiles)` for each material in worker processes and store the records."""
+    report = JobReport(planned=len(materials))
+    started = time.perf_counter()
+    if not materials:
+        return report
+    processes = max(1, min(processes or os.cpu_count() or 1, len(materials)))
+    context = multiprocessing.get_context("spawn")
+    executor = ProcessPoolExecutor(max_workers=processes, mp_context=context, initializer=_worker_setup)
+    pending: dict[Future, tuple[int, str, str]] = {}
+    queue = list(materials)
+    try:
+        while queue or pending:
+            while queue and len(pending) < 2 * processes:
+                item = queue.pop(0)
+                pending[executor.submit(_guarded, worker, item[2])] = item
+            finished, _ = wait(pending, return_when=FIRST_COMPLETED)
+            for future in finished:
+                material_id, name, smiles = pending.pop(future)
+                result, error, elapsed = future.result()
+                if error is not None:
+                    report.failures.append((material_id, name, error))
+                elif _store(catalogue, material_id, smiles, stamps, result, elapsed):
+                    report.done += 1
+                if progress:
+                    progress(1)
+    except KeyboardInterrupt:
+        report.interrupted = True
+        for future in pending:
+            future.cancel()
+        for process in list(getattr(executor, "_processes", {}).values()):
+            process.terminate()
+        executor.shutdown(wait=False, cancel_futures=True)
+    else:
+        executor.shutdown(wait=True)
+    finally:
+        report.elapsed_s = time.perf_counter() - started
+    return report

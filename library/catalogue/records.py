@@ -1,0 +1,118 @@
+"""Computed records in the catalogue: storing, loading and finding stale ones.
+
+A record is stale when its engine version or parameter hash differs from what
+would be computed now, or when the material's structure changed since (its
+InChIKey differs from the one the record was computed for). Stale records are
+recomputed, never silently mixed with fresh ones.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass
+
+import numpy as np
+from sqlalchemy import delete, select
+from sqlalchemy.orm import Session, selectinload
+
+from library.catalogue.models import ComputedArray, ComputedRecord, Material
+
+ARRAY_DTYPE = "<f4"
+
+
+def parameter_hash(parameters: dict) -> str:
+    """SHA-256 of the parameters as canonical JSON (sorted keys, no spaces)."""
+    text = json.dumps(parameters, sort_keys=True, separators=(",", ":"), default=str)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+@dataclass(frozen=True)
+class EngineStamp:
+    """What a record must carry to count as up to date."""
+
+    kind: str
+    engine_name: str
+    engine_version: str
+    parameters: dict
+
+    @property
+    def parameter_hash(self) -> str:
+        return parameter_hash(self.parameters)
+
+
+@dataclass(frozen=True)
+class LoadedRecord:
+    material_id: int
+    kind: str
+    engine_name: str
+    engine_version: str
+    parameter_hash: str
+    summary: dict
+    arrays: dict[str, np.ndarray]
+
+
+def encode_array(values) -> tuple[str, bytes]:
+    array = np.ascontiguousarray(np.asarray(values, dtype=ARRAY_DTYPE))
+    return ",".join(str(n) for n in array.shape), array.tobytes()
+
+
+def decode_array(shape: str, data: bytes, dtype: str = ARRAY_DTYPE) -> np.ndarray:
+    dims = tuple(int(n) for n in shape.split(",") if n != "")
+    return np.frombuffer(data, dtype=dtype).reshape(dims)
+
+
+def save_record(session: Session, material: Material, stamp: EngineStamp, arrays: dict,
+                summary: dict, *, elapsed_s: float | None = None) -> ComputedRecord:
+    """Replace the material's record of this kind and engine with a new one (inside the caller's transaction)."""
+    session.execute(delete(ComputedRecord).where(
+        ComputedRecord.material_id == material.id, ComputedRecord.kind == stamp.kind,
+        ComputedRecord.engine_name == stamp.engine_name))
+    record = ComputedRecord(
+        material_id=material.id, kind=stamp.kind, engine_name=stamp.engine_name,
+        engine_version=stamp.engine_version, parameter_hash=stamp.parameter_hash,
+        structure_inchikey=material.inchikey, elapsed_s=elapsed_s,
+        summary_json=json.dumps(summary, sort_keys=True, default=float))
+    for name, values in arrays.items():
+        shape, data = encode_array(values)
+        record.arrays.append(ComputedArray(name=name, dtype=ARRAY_DTYPE, shape=shape, data=data))
+    session.add(record)
+    return record
+
+
+def is_current(record: ComputedRecord | None, stamp: EngineStamp, inchikey: str) -> bool:
+    return (record is not None and record.engine_version == stamp.engine_version
+            and record.parameter_hash == stamp.parameter_hash and record.structure_inchikey == inchikey)
+
+
+def record_state(session: Session, stamp: EngineStamp, *, include_retired: bool = False) -> dict[int, str]:
+    """For each material id: 'current', 'stale' or 'missing' under this engine stamp."""
+    query = select(Material.id, Material.inchikey)
+    if not include_retired:
+        query = query.where(Material.status == "active")
+    materials = dict(session.execute(query).all())
+    records = {r.material_id: r for r in session.scalars(select(ComputedRecord).where(
+        ComputedRecord.kind == stamp.kind, ComputedRecord.engine_name == stamp.engine_name))}
+    state = {}
+    for material_id, inchikey in materials.items():
+        record = records.get(material_id)
+        state[material_id] = ("missing" if record is None
+                              else "current" if is_current(record, stamp, inchikey) else "stale")
+    return state
+
+
+def load_records(session: Session, kind: str, engine_name: str, *, material_ids=None,
+                 names: tuple[str, ...] | None = None) -> dict[int, LoadedRecord]:
+    """Records of one kind and engine, keyed by material id (optionally only some arrays)."""
+    query = select(ComputedRecord).options(selectinload(ComputedRecord.arrays)).where(
+        ComputedRecord.kind == kind, ComputedRecord.engine_name == engine_name)
+    if material_ids is not None:
+        query = query.where(ComputedRecord.material_id.in_(list(material_ids)))
+    loaded = {}
+    for record in session.scalars(query):
+        arrays = {a.name: decode_array(a.shape, a.data, a.dtype) for a in record.arrays
+                  if names is None or a.name in names}
+        loaded[record.material_id] = LoadedRecord(
+            record.material_id, record.kind, record.engine_name, record.engine_version,
+            record.parameter_hash, json.loads(record.summary_json or "{}"), arrays)
+    return loaded

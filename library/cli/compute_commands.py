@@ -1,0 +1,74 @@
+"""`olibra compute`: fill shape and vibration records, in worker processes, resumable."""
+
+from __future__ import annotations
+
+from library import computations
+from library.catalogue import jobs
+from library.catalogue.records import record_state
+from library.cli.catalogue_commands import open_catalogue
+from library.cli.output import FORMATS, emit, progress_bar
+from library.errors import OlibraError
+
+
+def plan_from_args(args) -> computations.Plan:
+    kinds = computations.KINDS if args.what == "all" else (args.what,)
+    try:
+        return computations.Plan(kinds=kinds, vibration_engine=args.engine)
+    except ValueError as exc:
+        raise OlibraError(str(exc)) from None
+
+
+def cmd_compute(args) -> int:
+    catalogue = open_catalogue(args)
+    plan = plan_from_args(args)
+    stamps = computations.stamps(plan)
+    materials = jobs.select_materials(catalogue, stamps, which="all" if args.all else "stale",
+                                      keys=args.materials)
+    if not materials:
+        print("every record is up to date; nothing to compute (use --all to recompute)")
+        return 0
+    with progress_bar(len(materials), f"{args.what} records", unit="material",
+                      enabled=not args.quiet) as bar:
+        report = jobs.run(catalogue, stamps, computations.worker(plan), materials,
+                          processes=args.processes, progress=bar.update)
+    for material_id, name, reason in report.failures:
+        print(f"failed: #{material_id} {name}: {reason}")
+    print(report.summary())
+    if report.interrupted:
+        return 130
+    return 1 if report.failures else 0
+
+
+def cmd_status(args) -> int:
+    catalogue = open_catalogue(args)
+    rows = []
+    with catalogue.reading() as session:
+        for engine in ("mmff", "gfn2"):
+            plan = computations.Plan(kinds=computations.KINDS, vibration_engine=engine)
+            for stamp in computations.stamps(plan):
+                if stamp.kind == "shape" and engine != "mmff":
+                    continue
+                states = list(record_state(session, stamp).values())
+                rows.append({"kind": stamp.kind, "engine": stamp.engine_name,
+                             "current": states.count("current"), "stale": states.count("stale"),
+                             "missing": states.count("missing")})
+    emit(rows, ["kind", "engine", "current", "stale", "missing"], args.format)
+    return 0
+
+
+def register(commands) -> None:
+    p = commands.add_parser(
+        "compute", help="compute shape and/or vibration records (missing or stale ones by default)")
+    p.add_argument("what", choices=("shape", "vibration", "all"))
+    p.add_argument("materials", nargs="*", metavar="MATERIAL",
+                   help="only these materials (id, name, synonym, CAS RN or InChIKey)")
+    p.add_argument("--all", action="store_true", help="recompute every active material, even if current")
+    p.add_argument("--engine", choices=computations.VIBRATION_ENGINES, default="mmff",
+                   help="vibration engine: mmff (MMFF94, default) or gfn2 (GFN2-xTB, needs olibra[xtb])")
+    p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(handler=cmd_compute)
+
+    p = commands.add_parser("compute-status", help="count current, stale and missing computed records")
+    p.add_argument("--format", choices=FORMATS, default="table")
+    p.set_defaults(handler=cmd_status)
