@@ -1,0 +1,412 @@
+"""Low-energy 3D conformer ensembles with Boltzmann weights.
+
+Embedding: ETKDG version 3 (J. Chem. Inf. Model. 60, 2044 (2020)).
+Optimization: MMFF94 (J. Comput. Chem. 17, 490 (1996)), UFF where MMFF94
+lacks parameters. Conformers are pruned by heavy-atom RMSD after optimal
+superposition (symmetry-equivalent atom orderings considered), kept within an
+energy window above the minimum, and weighted by Boltzmann factors. A
+structure with unassigned stereocentres is treated as an equal mixture of its
+stereoisomers.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.constants
+from rdkit import Chem, rdBase
+from rdkit.Geometry import Point3D
+from rdkit.Chem import rdDistGeom, rdForceFieldHelpers, rdMolAlign, rdMolDescriptors
+from rdkit.Chem.EnumerateStereoisomers import (
+    EnumerateStereoisomers,
+    StereoEnumerationOptions,
+)
+
+__all__ = [
+    "Conformer",
+    "ConformerEnsemble",
+    "ConformerError",
+    "MAX_HEAVY_ATOMS",
+    "default_max_conformers",
+    "heavy_atom_mol",
+    "ensemble",
+    "parameters",
+    "to_mol",
+]
+
+#: Largest structure accepted (heavy atoms); odorants rarely exceed ~30.
+MAX_HEAVY_ATOMS = 80
+
+#: Gas constant in kcal/(mol K), from CODATA via scipy.constants.
+GAS_CONSTANT_KCAL_PER_MOL_K = scipy.constants.R / (1000.0 * scipy.constants.calorie)
+
+# Default conformer cap: BASE + PER_ROTOR * rotatable bonds, at most CEILING.
+_CAP_BASE = 2
+_CAP_PER_ROTATABLE_BOND = 2
+_CAP_CEILING = 10
+# Embedding attempts per kept conformer slot (more attempts, better minima).
+_EMBED_OVERSAMPLING = 1.0
+# Symmetry-equivalent atom orderings considered when pruning by RMSD.
+_MAX_SYMMETRY_MATCHES = 64
+_MMFF_MAX_ITERATIONS = 500
+# Embedding tries per conformer in the first, quick pass.
+_QUICK_EMBED_TRIES = 5
+
+
+class ConformerError(ValueError):
+    """The structure cannot be turned into a conformer ensemble."""
+
+
+@dataclass(frozen=True)
+class Conformer:
+    """One conformer.
+
+    mol: explicit hydrogens, exactly one conformer (id 0), isotopes and
+    stereo kept. energy_kcal: force-field energy relative to the minimum of
+    its stereoisomer (kcal/mol). weight: Boltzmann weight within the
+    stereoisomer divided by the number of stereoisomers (sums to 1 over the
+    ensemble). stereoisomer: index into the enumerated stereoisomers.
+    """
+
+    mol: Chem.Mol
+    energy_kcal: float
+    weight: float
+    stereoisomer: int
+
+
+@dataclass(frozen=True)
+class ConformerEnsemble:
+    """Weighted conformers of one material (all its stereoisomers)."""
+
+    members: tuple[Conformer, ...]
+    force_field: str
+    stereoisomer_count: int
+    parameters: dict = field(default_factory=dict)
+
+    @property
+    def weights(self) -> np.ndarray:
+        """Member weights (sum 1) as a float64 array."""
+        return np.array([m.weight for m in self.members], dtype=np.float64)
+
+    def __len__(self) -> int:
+        return len(self.members)
+
+
+def to_mol(mol_or_smiles: Chem.Mol | str) -> Chem.Mol:
+    """Parse a SMILES string or copy a Mol; raise ConformerError when unusable."""
+    if isinstance(mol_or_smiles, str):
+        text = mol_or_smiles.strip()
+        if not text:
+            raise ConformerError("empty SMILES string")
+        mol = Chem.MolFromSmiles(text)
+        if mol is None:
+            raise ConformerError(f"could not parse SMILES {mol_or_smiles!r}")
+    elif isinstance(mol_or_smiles, Chem.Mol):
+        mol = Chem.Mol(mol_or_smiles)
+        try:
+            Chem.SanitizeMol(mol)
+        except Exception as exc:  # RDKit raises several sanitization types
+            raise ConformerError(f"structure fails sanitization: {exc}") from None
+    else:
+        raise ConformerError(
+            f"expected a SMILES string or rdkit Mol, got {type(mol_or_smiles).__name__}"
+        )
+    heavy = mol.GetNumHeavyAtoms()
+    if mol.GetNumAtoms() == 0:
+        raise ConformerError("structure has no atoms")
+    if heavy > MAX_HEAVY_ATOMS:
+        raise ConformerError(
+            f"structure has {heavy} heavy atoms; the limit is {MAX_HEAVY_ATOMS}"
+        )
+    if any(atom.GetAtomicNum() == 0 for atom in mol.GetAtoms()):
+        raise ConformerError("structure contains dummy atoms (*); give a complete structure")
+    return mol
+
+
+def heavy_atom_mol(mol_h: Chem.Mol) -> Chem.Mol:
+    """Copy of `mol_h` without any hydrogen (deuterium and tritium too).
+
+    Heavy atoms keep their order and the conformers keep their ids.
+    """
+    params = Chem.RemoveHsParameters()
+    params.removeIsotopes = True
+    params.removeDefiningBondStereo = True
+    params.removeWithWedgedBond = True
+    params.removeHigherDegrees = True
+    params.removeHydrides = True
+    params.removeNonimplicit = True
+    params.showWarnings = False
+    heavy = Chem.RemoveHs(mol_h, params, sanitize=False)
+    if any(atom.GetAtomicNum() == 1 for atom in heavy.GetAtoms()):
+        editable = Chem.RWMol(heavy)
+        for atom in sorted(editable.GetAtoms(), key=lambda a: -a.GetIdx()):
+            if atom.GetAtomicNum() == 1:
+                editable.RemoveAtom(atom.GetIdx())
+        heavy = editable.GetMol()
+    heavy.UpdatePropertyCache(strict=False)
+    return heavy
+
+
+def default_max_conformers(mol: Chem.Mol) -> int:
+    """Conformer cap for a material that grows with its rotatable bonds."""
+    rotors = rdMolDescriptors.CalcNumRotatableBonds(mol)
+    return min(_CAP_BASE + _CAP_PER_ROTATABLE_BOND * rotors, _CAP_CEILING)
+
+
+def parameters(
+    *,
+    max_conformers: int | None = None,
+    energy_window_kcal: float = 8.0,
+    rmsd_threshold_a: float = 0.5,
+    temperature_k: float = 298.15,
+    max_stereoisomers: int = 8,
+    seed: int = 0xC0FFEE,
+) -> dict:
+    """JSON-able description of the ensemble settings (hashed for staleness)."""
+    return {
+        "embedding": "ETKDGv3",
+        "force_field": "MMFF94|UFF",
+        "max_conformers": (
+            max_conformers
+            if max_conformers is not None
+            else f"min({_CAP_BASE}+{_CAP_PER_ROTATABLE_BOND}*rotatable_bonds,{_CAP_CEILING})"
+        ),
+        "embed_oversampling": _EMBED_OVERSAMPLING,
+        "energy_window_kcal": float(energy_window_kcal),
+        "rmsd_threshold_a": float(rmsd_threshold_a),
+        "temperature_k": float(temperature_k),
+        "max_stereoisomers": int(max_stereoisomers),
+        "seed": int(seed),
+        "rdkit_version": rdBase.rdkitVersion,
+    }
+
+
+def _check_knobs(max_conformers, energy_window_kcal, rmsd_threshold_a, temperature_k,
+                 max_stereoisomers) -> None:
+    if max_conformers is not None and (not isinstance(max_conformers, int) or max_conformers < 1):
+        raise ConformerError(f"max_conformers must be a positive integer, got {max_conformers!r}")
+    if not energy_window_kcal > 0:
+        raise ConformerError(f"energy_window_kcal must be positive, got {energy_window_kcal!r}")
+    if not rmsd_threshold_a >= 0:
+        raise ConformerError(f"rmsd_threshold_a must be >= 0, got {rmsd_threshold_a!r}")
+    if not temperature_k > 0:
+        raise ConformerError(f"temperature_k must be positive, got {temperature_k!r}")
+    if not isinstance(max_stereoisomers, int) or max_stereoisomers < 1:
+        raise ConformerError(
+            f"max_stereoisomers must be a positive integer, got {max_stereoisomers!r}"
+        )
+
+
+def _stereoisomers(mol: Chem.Mol, max_stereoisomers: int, seed: int) -> list[Chem.Mol]:
+    """Stereoisomers for unassigned centres (the input itself when fully assigned)."""
+    options = StereoEnumerationOptions(
+        onlyUnassigned=True, unique=True, maxIsomers=max_stereoisomers, rand=seed
+    )
+    isomers = list(EnumerateStereoisomers(mol, options=options))
+    if not isomers:
+        isomers = [Chem.Mol(mol)]
+    # Deterministic order independent of the enumeration's internal order.
+    isomers.sort(key=lambda m: Chem.MolToSmiles(m))
+    return isomers
+
+
+def _force_field(mol_h: Chem.Mol) -> str:
+    if rdForceFieldHelpers.MMFFHasAllMoleculeParams(mol_h):
+        return "MMFF94"
+    if rdForceFieldHelpers.UFFHasAllMoleculeParams(mol_h):
+        return "UFF"
+    raise ConformerError("neither MMFF94 nor UFF has parameters for this structure")
+
+
+def _embed(mol_h: Chem.Mol, count: int, seed: int, rmsd_threshold_a: float,
+           *, thorough: bool) -> list[int]:
+    """ETKDGv3 embedding; `thorough` retries harder, from random coordinates."""
+    params = rdDistGeom.ETKDGv3()
+    params.randomSeed = seed
+    params.numThreads = 1
+    params.pruneRmsThresh = rmsd_threshold_a if rmsd_threshold_a > 0 else -1.0
+    params.onlyHeavyAtomsForRMS = True
+    if not thorough:
+        # Few tries per conformer: quick to give up on an impossible
+        # stereoisomer (e.g. an inverted bridgehead in a bicyclic terpene).
+        params.maxIterations = _QUICK_EMBED_TRIES
+        return list(rdDistGeom.EmbedMultipleConfs(mol_h, numConfs=count, params=params))
+    ids = list(rdDistGeom.EmbedMultipleConfs(mol_h, numConfs=count, params=params))
+    if not ids:  # the usual fallback: start from random coordinates
+        params.useRandomCoords = True
+        params.maxIterations = 10 * max(mol_h.GetNumAtoms(), 10)
+        ids = list(rdDistGeom.EmbedMultipleConfs(mol_h, numConfs=count, params=params))
+    return ids
+
+
+def _optimize(mol_h: Chem.Mol, force_field: str) -> np.ndarray:
+    if force_field == "MMFF94":
+        results = rdForceFieldHelpers.MMFFOptimizeMoleculeConfs(
+            mol_h, numThreads=1, maxIters=_MMFF_MAX_ITERATIONS, mmffVariant="MMFF94"
+        )
+    else:
+        results = rdForceFieldHelpers.UFFOptimizeMoleculeConfs(
+            mol_h, numThreads=1, maxIters=_MMFF_MAX_ITERATIONS
+        )
+    return np.array([energy for _, energy in results], dtype=np.float64)
+
+
+def _prune(mol_h: Chem.Mol, conf_ids: list[int], threshold_a: float,
+           limit: int) -> list[int]:
+    """Greedy selection in the given (energy) order by heavy-atom RMSD."""
+    if threshold_a <= 0:
+        return conf_ids[:limit]
+    if mol_h.GetNumHeavyAtoms() < 2:
+        return conf_ids[:1]
+    heavy = heavy_atom_mol(mol_h)
+    matches = heavy.GetSubstructMatches(
+        heavy, uniquify=False, useChirality=False, maxMatches=_MAX_SYMMETRY_MATCHES
+    )
+    maps = [list(zip(match, range(len(match)))) for match in matches] or None
+    kept: list[int] = []
+    for cid in conf_ids:
+        distinct = True
+        for ref in kept:
+            rms = rdMolAlign.GetBestRMS(heavy, heavy, ref, cid, map=maps)
+            if rms < threshold_a:
+                distinct = False
+                break
+        if distinct:
+            kept.append(cid)
+            if len(kept) >= limit:
+                break
+    return kept
+
+
+def _working_copy(mol_h: Chem.Mol) -> tuple[Chem.Mol, list[int]]:
+    """Isotope-free copy in canonical atom order, and that order.
+
+    Isotopologues share one potential-energy surface, and a structure spelled
+    with atoms in another order is the same structure: both then get the same
+    conformers. Isotope labels that create stereo (e.g. CHD) are kept.
+    order[k] is the input index of working atom k.
+    """
+    work = Chem.Mol(mol_h)
+    for atom in work.GetAtoms():
+        atom.SetIsotope(0)
+    if len(Chem.FindPotentialStereo(work)) != len(Chem.FindPotentialStereo(mol_h)):
+        work = Chem.Mol(mol_h)
+    ranks = list(Chem.CanonicalRankAtoms(work, breakTies=True))
+    order = sorted(range(len(ranks)), key=ranks.__getitem__)
+    return Chem.RenumberAtoms(work, order), order
+
+
+def _single_conformer_mol(mol_h: Chem.Mol, work: Chem.Mol, order: list[int],
+                          conf_id: int) -> Chem.Mol:
+    """`mol_h` (input order, isotopes) with the coordinates of one working conformer."""
+    out = Chem.Mol(mol_h)
+    out.RemoveAllConformers()
+    positions = work.GetConformer(conf_id).GetPositions()
+    conf = Chem.Conformer(out.GetNumAtoms())
+    for k, original in enumerate(order):
+        conf.SetAtomPosition(original, Point3D(*positions[k]))
+    conf.Set3D(True)
+    conf.SetId(0)
+    out.AddConformer(conf, assignId=False)
+    return out
+
+
+def ensemble(
+    mol_or_smiles: Chem.Mol | str,
+    *,
+    max_conformers: int | None = None,
+    energy_window_kcal: float = 8.0,
+    rmsd_threshold_a: float = 0.5,
+    temperature_k: float = 298.15,
+    max_stereoisomers: int = 8,
+    seed: int = 0xC0FFEE,
+) -> ConformerEnsemble:
+    """Low-energy conformers of a material with Boltzmann weights.
+
+    max_conformers caps the conformers of the material, shared evenly
+    over its stereoisomers (each gets ceil(cap / stereoisomers); None: a cap
+    that grows with rotatable bonds, see default_max_conformers). energy_window_kcal
+    (kcal/mol) above each stereoisomer's minimum; rmsd_threshold_a (angstrom)
+    heavy-atom RMSD below which two conformers count as one; temperature_k
+    (kelvin) for the Boltzmann weights. Unassigned stereocentres are
+    enumerated (at most max_stereoisomers) and weighted equally; an
+    enumerated stereoisomer that cannot be embedded while another can (an
+    inverted bridgehead) is dropped. Conformers are computed on an
+    isotope-free copy in canonical atom order, so isotopologues and
+    reordered inputs share geometries. Deterministic for a given input and seed.
+    """
+    _check_knobs(max_conformers, energy_window_kcal, rmsd_threshold_a, temperature_k,
+                 max_stereoisomers)
+    mol = to_mol(mol_or_smiles)
+    isomers = _stereoisomers(mol, max_stereoisomers, seed)
+    rt = GAS_CONSTANT_KCAL_PER_MOL_K * temperature_k
+
+    total_cap = max_conformers if max_conformers is not None else default_max_conformers(mol)
+    cap = math.ceil(total_cap / len(isomers))
+    attempts = math.ceil(cap * _EMBED_OVERSAMPLING)
+
+    # First pass: quick embedding of every stereoisomer. An enumerated
+    # stereoisomer that fails it while another succeeds is taken to be
+    # geometrically impossible and dropped; otherwise retry thoroughly.
+    embedded = []
+    for isomer in isomers:
+        mol_h = Chem.AddHs(isomer)
+        work, order = _working_copy(mol_h)
+        ids = _embed(work, attempts, seed, rmsd_threshold_a, thorough=False)
+        embedded.append((mol_h, work, order, ids))
+    if any(entry[3] for entry in embedded):
+        embedded = [entry for entry in embedded if entry[3]]
+    else:
+        embedded = [
+            (mol_h, work, order, _embed(work, attempts, seed, rmsd_threshold_a, thorough=True))
+            for mol_h, work, order, _ in embedded
+        ]
+        failed = [Chem.MolToSmiles(Chem.RemoveHs(m)) for m, _, _, ids in embedded if not ids]
+        if failed:
+            raise ConformerError(
+                f"3D embedding failed for {failed[0]!r} even from random coordinates; "
+                "check for strained or impossible stereochemistry"
+            )
+    n_isomers = len(embedded)
+
+    members: list[Conformer] = []
+    force_fields: set[str] = set()
+    for index, (mol_h, work, order, conf_ids) in enumerate(embedded):
+        force_field = _force_field(work)
+        force_fields.add(force_field)
+        energies = _optimize(work, force_field)
+        by_id = dict(zip([c.GetId() for c in work.GetConformers()], energies))
+        if not all(math.isfinite(by_id[c]) for c in conf_ids):
+            raise ConformerError("force-field optimization returned a non-finite energy")
+        by_energy = sorted(conf_ids, key=lambda c: (by_id[c], c))
+        e_min = by_id[by_energy[0]]
+        in_window = [c for c in by_energy if by_id[c] - e_min <= energy_window_kcal]
+        kept = _prune(work, in_window, rmsd_threshold_a, cap)
+        relative = np.array([by_id[c] - e_min for c in kept], dtype=np.float64)
+        boltzmann = np.exp(-relative / rt)
+        boltzmann /= boltzmann.sum()
+        for cid, e_rel, w in zip(kept, relative, boltzmann):
+            members.append(
+                Conformer(
+                    mol=_single_conformer_mol(mol_h, work, order, cid),
+                    energy_kcal=float(e_rel),
+                    weight=float(w) / n_isomers,
+                    stereoisomer=index,
+                )
+            )
+    force_field = "MMFF94" if force_fields == {"MMFF94"} else "UFF"
+    return ConformerEnsemble(
+        members=tuple(members),
+        force_field=force_field,
+        stereoisomer_count=n_isomers,
+        parameters=parameters(
+            max_conformers=max_conformers,
+            energy_window_kcal=energy_window_kcal,
+            rmsd_threshold_a=rmsd_threshold_a,
+            temperature_k=temperature_k,
+            max_stereoisomers=max_stereoisomers,
+            seed=seed,
+        ),
+    )
