@@ -1,0 +1,206 @@
+"""Pairs of materials on which the shape and vibration metrics disagree.
+
+Two directions:
+
+* ``"shape-not-vibration"``: shape-alike but vibration-unalike (the isotopologue
+  case: same shape, shifted vibrational modes);
+* ``"vibration-not-shape"``: vibration-alike but shape-unalike (the mirror-image
+  case: identical spectra, different chiral moments).
+
+The scan is catalogue-wide but never loops over all pairs: it takes every
+material's top-``k`` neighbor list under shape and under vibration
+(:meth:`SimilarityIndex.neighbors`), scores each listed pair exactly under the other
+metric, and keeps pairs past the thresholds. A pair is scored by the gap between
+its two similarities (0-1, larger = stronger disagreement).
+
+Optionally an observed similarity per pair (e.g. the Jaccard index of odor
+descriptor sets, or the correlation of panel profiles) says which metric the
+observation sides with.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from library.search.index import SearchFilter, SimilarityIndex
+
+SHAPE_NOT_VIBRATION = "shape-not-vibration"
+VIBRATION_NOT_SHAPE = "vibration-not-shape"
+DIRECTIONS = (SHAPE_NOT_VIBRATION, VIBRATION_NOT_SHAPE)
+
+
+@dataclass(frozen=True)
+class Disagreement:
+    """One pair on which shape and vibration disagree.
+
+    ``shape``, ``vibration`` (and ``structure`` when the index has structure bits)
+    are exact similarities on 0-1. ``score = |shape - vibration|``.
+    ``shape_rank`` / ``vibration_rank``: the best rank either material gives the
+    other in its neighbor list under that metric (1 = nearest), None if neither
+    list holds it. ``observed`` is the observed similarity when given;
+    ``observed_alike`` is True / False / None (between thresholds or unknown) and
+    ``sides_with`` is "shape", "vibration" or None.
+    """
+
+    id_a: object
+    id_b: object
+    direction: str
+    score: float
+    shape: float
+    vibration: float
+    structure: float | None
+    shape_rank: int | None
+    vibration_rank: int | None
+    observed: float | None = None
+    observed_alike: bool | None = None
+    sides_with: str | None = None
+
+
+def jaccard(a, b) -> float:
+    """Jaccard index of two descriptor sets (0 when both are empty)."""
+    a, b = set(a), set(b)
+    union = len(a | b)
+    return len(a & b) / union if union else 0.0
+
+
+def _pair_ranks(lists) -> dict[tuple[int, int], int]:
+    ranks: dict[tuple[int, int], int] = {}
+    for row, neighbors in zip(lists.rows.tolist(), lists.neighbor_rows.tolist()):
+        for position, other in enumerate(neighbors, start=1):
+            if other < 0:
+                continue
+            key = (row, other) if row < other else (other, row)
+            if position < ranks.get(key, 1 << 30):
+                ranks[key] = position
+    return ranks
+
+
+def find_disagreements(
+    index: SimilarityIndex,
+    *,
+    k: int = 20,
+    min_shape: float = 0.9,
+    max_vibration: float = 0.6,
+    min_vibration: float = 0.9,
+    max_shape: float = 0.6,
+    direction: str = "both",
+    observed: Mapping | Callable | None = None,
+    observed_alike: float = 0.5,
+    observed_unalike: float = 0.2,
+    filters: SearchFilter | None = None,
+    limit: int | None = None,
+    shape_neighbors=None,
+    vibration_neighbors=None,
+) -> list[Disagreement]:
+    """Disagreeing pairs, strongest first.
+
+    ``"shape-not-vibration"`` pairs have shape >= ``min_shape`` and vibration <=
+    ``max_vibration``; ``"vibration-not-shape"`` pairs have vibration >=
+    ``min_vibration`` and shape <= ``max_shape`` (all similarities 0-1).
+    ``direction`` is one of :data:`DIRECTIONS` or ``"both"``. ``k`` is the length of
+    each material's neighbor lists (a pair must appear in one of them).
+
+    ``observed``: a mapping ``{(id_a, id_b): similarity}`` (either order) or a callable
+    ``(id_a, id_b) -> similarity or None``. A pair with observed similarity >=
+    ``observed_alike`` counts as observed alike, <= ``observed_unalike`` as unalike.
+    Precomputed :class:`NeighborLists` may be passed to skip the scans.
+    """
+    if direction != "both" and direction not in DIRECTIONS:
+        raise ValueError(f"direction must be 'both' or one of {DIRECTIONS}, got {direction!r}")
+    for name, value in (
+        ("min_shape", min_shape),
+        ("max_vibration", max_vibration),
+        ("min_vibration", min_vibration),
+        ("max_shape", max_shape),
+    ):
+        if not 0.0 <= float(value) <= 1.0:
+            raise ValueError(f"{name} must be a similarity in 0-1, got {value!r}")
+    if observed is not None and not observed_unalike <= observed_alike:
+        raise ValueError(
+            f"observed_unalike ({observed_unalike}) must not exceed observed_alike ({observed_alike})"
+        )
+    if observed is not None and not (callable(observed) or isinstance(observed, Mapping)):
+        raise ValueError("observed must be a mapping {(id_a, id_b): similarity} or a callable (id_a, id_b)")
+    wanted = DIRECTIONS if direction == "both" else (direction,)
+
+    lists = {}
+    if SHAPE_NOT_VIBRATION in wanted:
+        lists["shape"] = shape_neighbors if shape_neighbors is not None else index.neighbors("shape", k, filters=filters)
+    if VIBRATION_NOT_SHAPE in wanted:
+        lists["vibration"] = (
+            vibration_neighbors if vibration_neighbors is not None else index.neighbors("vibration", k, filters=filters)
+        )
+    ranks = {metric: _pair_ranks(found) for metric, found in lists.items()}
+    pairs = sorted(set().union(*[set(r) for r in ranks.values()])) if ranks else []
+    if not pairs:
+        return []
+    rows_a = np.array([p[0] for p in pairs], np.int64)
+    rows_b = np.array([p[1] for p in pairs], np.int64)
+    scores = index.pair_scores(rows_a, rows_b)
+    shape, vibration = scores["shape"].astype(float), scores["vibration"].astype(float)
+    structure = scores.get("structure")
+
+    keep = np.zeros(len(pairs), bool)
+    labels = np.empty(len(pairs), object)
+    if SHAPE_NOT_VIBRATION in wanted:
+        hit = (shape >= min_shape) & (vibration <= max_vibration)
+        labels[hit] = SHAPE_NOT_VIBRATION
+        keep |= hit
+    if VIBRATION_NOT_SHAPE in wanted:
+        hit = (vibration >= min_vibration) & (shape <= max_shape) & ~keep
+        labels[hit] = VIBRATION_NOT_SHAPE
+        keep |= hit
+
+    found = []
+    ids = index.ids_
+    for i in np.flatnonzero(keep):
+        pair = pairs[i]
+        id_a, id_b = ids[pair[0]].item(), ids[pair[1]].item()
+        value = _observed(observed, id_a, id_b)
+        alike = None
+        sides = None
+        if value is not None:
+            if value >= observed_alike:
+                alike = True
+            elif value <= observed_unalike:
+                alike = False
+            if alike is not None:
+                says_alike = "shape" if labels[i] == SHAPE_NOT_VIBRATION else "vibration"
+                says_unalike = "vibration" if says_alike == "shape" else "shape"
+                sides = says_alike if alike else says_unalike
+        found.append(
+            Disagreement(
+                id_a=id_a,
+                id_b=id_b,
+                direction=str(labels[i]),
+                score=float(abs(shape[i] - vibration[i])),
+                shape=float(shape[i]),
+                vibration=float(vibration[i]),
+                structure=None if structure is None else float(structure[i]),
+                shape_rank=ranks.get("shape", {}).get(pair),
+                vibration_rank=ranks.get("vibration", {}).get(pair),
+                observed=value,
+                observed_alike=alike,
+                sides_with=sides,
+            )
+        )
+    found.sort(key=lambda d: (-d.score, str(d.id_a), str(d.id_b)))
+    return found[:limit] if limit is not None else found
+
+
+def _observed(observed, id_a, id_b) -> float | None:
+    if observed is None:
+        return None
+    if callable(observed) and not isinstance(observed, Mapping):
+        value = observed(id_a, id_b)
+    else:
+        value = observed.get((id_a, id_b), observed.get((id_b, id_a)))
+    if value is None:
+        return None
+    value = float(value)
+    if not np.isfinite(value):
+        raise ValueError(f"observed similarity for ({id_a!r}, {id_b!r}) is not finite: {value!r}")
+    return value

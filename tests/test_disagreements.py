@@ -1,0 +1,86 @@
+"""Disagreement scan: planted isotopologue-like and mirror-image-like pairs are found."""
+
+import numpy as np
+import pytest
+
+from library.search import bench
+from library.search.disagreements import (
+    SHAPE_NOT_VIBRATION,
+    VIBRATION_NOT_SHAPE,
+    find_disagreements,
+    jaccard,
+)
+from library.search.index import SimilarityIndex
+
+
+@pytest.fixture(scope="module")
+def planted():
+    ids, shape, fingerprints = bench.synthetic_catalogue(500, seed=4)
+    ids = np.array([f"m{i}" for i in range(len(ids))])
+    # isotopologue-like: identical shape, fingerprint of another family (modes shifted)
+    shape[1] = shape[0]
+    fingerprints[1] = bench.eva_fingerprints(np.array([[700.0, 1100.0, 2150.0, 2200.0, 2250.0]]))[0]
+    # mirror-image-like: identical fingerprint, chirality moments (last 12 shape values) far apart
+    fingerprints[3] = fingerprints[2]
+    shape[3] = shape[2]
+    shape[3, -12:] = shape[2, -12:] + 40.0
+    index = SimilarityIndex(pca_components=16).fit(ids, shape, fingerprints)
+    return index
+
+
+def test_planted_pairs_are_found(planted):
+    found = find_disagreements(planted, k=10, min_shape=0.9, max_vibration=0.6, min_vibration=0.9, max_shape=0.6)
+    pairs = {(d.id_a, d.id_b): d for d in found}
+    isotopologue = pairs[("m0", "m1")]
+    assert isotopologue.direction == SHAPE_NOT_VIBRATION
+    assert isotopologue.shape == pytest.approx(1.0)  # identical shape vectors
+    assert isotopologue.shape_rank == 1
+    assert isotopologue.score == pytest.approx(1.0 - isotopologue.vibration)
+    mirror = pairs[("m2", "m3")]
+    assert mirror.direction == VIBRATION_NOT_SHAPE
+    assert mirror.vibration == pytest.approx(1.0, abs=1e-6)  # identical fingerprints, float32 dot
+    # 12 of 72 values apart by 40: S = 1 / (1 + 480 / 72)
+    assert mirror.shape == pytest.approx(1.0 / (1.0 + 12 * 40.0 / 72), rel=1e-5)
+    assert [d.score for d in found] == sorted((d.score for d in found), reverse=True)
+    for d in found:  # every reported pair is past its thresholds
+        if d.direction == SHAPE_NOT_VIBRATION:
+            assert d.shape >= 0.9 and d.vibration <= 0.6
+        else:
+            assert d.vibration >= 0.9 and d.shape <= 0.6
+
+
+def test_direction_filter_and_thresholds(planted):
+    only_shape = find_disagreements(planted, k=10, direction=SHAPE_NOT_VIBRATION)
+    assert only_shape and all(d.direction == SHAPE_NOT_VIBRATION for d in only_shape)
+    strict = find_disagreements(planted, k=10, direction=VIBRATION_NOT_SHAPE, max_shape=0.05)
+    assert all(d.shape <= 0.05 for d in strict)
+    assert ("m2", "m3") not in {(d.id_a, d.id_b) for d in strict}
+    with pytest.raises(ValueError, match="direction"):
+        find_disagreements(planted, direction="sideways")
+    with pytest.raises(ValueError, match="min_shape"):
+        find_disagreements(planted, min_shape=2)
+
+
+def test_observed_axis(planted):
+    descriptors = {"m0": {"woody", "amber"}, "m1": {"woody", "amber"}, "m2": {"citrus"}, "m3": {"musky"}}
+
+    def observed(a, b):
+        if a in descriptors and b in descriptors:
+            return jaccard(descriptors[a], descriptors[b])
+        return None
+
+    found = find_disagreements(planted, k=10, observed=observed, observed_alike=0.5, observed_unalike=0.2)
+    pairs = {(d.id_a, d.id_b): d for d in found}
+    assert pairs[("m0", "m1")].observed == 1.0
+    assert pairs[("m0", "m1")].observed_alike is True
+    assert pairs[("m0", "m1")].sides_with == "shape"
+    assert pairs[("m2", "m3")].observed_alike is False
+    assert pairs[("m2", "m3")].sides_with == "shape"  # shape said unalike, observation agrees
+    mapping = find_disagreements(planted, k=10, observed={("m1", "m0"): 0.3})
+    isotopologue = {(d.id_a, d.id_b): d for d in mapping}[("m0", "m1")]
+    assert isotopologue.observed == 0.3 and isotopologue.observed_alike is None and isotopologue.sides_with is None
+
+
+def test_jaccard():
+    assert jaccard({"a", "b"}, {"b", "c"}) == pytest.approx(1 / 3)  # |{b}| / |{a, b, c}|
+    assert jaccard(set(), set()) == 0.0
