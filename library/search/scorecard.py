@@ -110,38 +110,52 @@ def mantel_test(observed, metric, *, permutations: int = 999, seed: int = 0) -> 
     return r, (count + 1) / (int(permutations) + 1)
 
 
-def _spearman_pairs(a: np.ndarray, b: np.ndarray) -> float:
-    ra, rb = rankdata(a), rankdata(b)
-    ra -= ra.mean()
-    rb -= rb.mean()
-    norm = np.sqrt((ra @ ra) * (rb @ rb))
-    return float(ra @ rb / norm) if norm > 0 else float("nan")
+def bootstrap_intervals(
+    observed, metrics: Sequence, *, resamples: int = 1000, confidence: float = 0.95, seed: int = 0
+) -> list[tuple[float, float]]:
+    """Percentile bootstrap intervals of the pairwise Spearman r of each metric, resampling materials.
+
+    All metrics share the same resamples (and the observed ranks of each resample are
+    computed once), so their intervals are comparable and the work is not repeated.
+    """
+    a = _square(observed, "observed")
+    matrices = [_square(m, "metric", a.shape[0]) for m in metrics]
+    if not 0 < confidence < 1:
+        raise ValueError(f"confidence must be between 0 and 1, got {confidence!r}")
+    n = a.shape[0]
+    rng = np.random.default_rng(seed)
+    i, j = np.triu_indices(n, 1)
+    values: list[list[float]] = [[] for _ in matrices]
+    for _ in range(int(resamples)):
+        pick = rng.integers(0, n, size=n)
+        rows, cols = pick[i], pick[j]
+        distinct = rows != cols
+        rows, cols = rows[distinct], cols[distinct]
+        ra = rankdata(a[rows, cols])
+        ra -= ra.mean()
+        norm_a = ra @ ra
+        for found, matrix in zip(values, matrices):
+            rb = rankdata(matrix[rows, cols])
+            rb -= rb.mean()
+            norm = np.sqrt(norm_a * (rb @ rb))
+            if norm > 0:
+                found.append(float(ra @ rb / norm))
+    tail = (1 - confidence) / 2 * 100
+    out = []
+    for found in values:
+        if not found:
+            out.append((float("nan"), float("nan")))
+        else:
+            low, high = np.percentile(found, [tail, 100 - tail])
+            out.append((float(low), float(high)))
+    return out
 
 
 def bootstrap_interval(
     observed, metric, *, resamples: int = 1000, confidence: float = 0.95, seed: int = 0
 ) -> tuple[float, float]:
     """Percentile bootstrap interval of the pairwise Spearman r, resampling materials."""
-    a = _square(observed, "observed")
-    b = _square(metric, "metric", a.shape[0])
-    if not 0 < confidence < 1:
-        raise ValueError(f"confidence must be between 0 and 1, got {confidence!r}")
-    n = a.shape[0]
-    rng = np.random.default_rng(seed)
-    i, j = np.triu_indices(n, 1)
-    values = []
-    for _ in range(int(resamples)):
-        pick = rng.integers(0, n, size=n)
-        rows, cols = pick[i], pick[j]
-        distinct = rows != cols
-        value = _spearman_pairs(a[rows[distinct], cols[distinct]], b[rows[distinct], cols[distinct]])
-        if np.isfinite(value):
-            values.append(value)
-    if not values:
-        return float("nan"), float("nan")
-    tail = (1 - confidence) / 2 * 100
-    low, high = np.percentile(values, [tail, 100 - tail])
-    return float(low), float(high)
+    return bootstrap_intervals(observed, [metric], resamples=resamples, confidence=confidence, seed=seed)[0]
 
 
 def precision_at_k(metric, relevant, k: int = 5) -> float:
@@ -205,10 +219,11 @@ def score_metrics(
     if descriptor_sets is None:
         relevant = observed > relevance_threshold
     results = []
-    for name, matrix in metrics.items():
-        matrix = _square(matrix, f"metrics[{name!r}]", n)
+    squares = {name: _square(matrix, f"metrics[{name!r}]", n) for name, matrix in metrics.items()}
+    intervals = bootstrap_intervals(observed, list(squares.values()), resamples=resamples,
+                                    confidence=confidence, seed=seed)
+    for (name, matrix), (low, high) in zip(squares.items(), intervals):
         r, p = mantel_test(observed, matrix, permutations=permutations, seed=seed)
-        low, high = bootstrap_interval(observed, matrix, resamples=resamples, confidence=confidence, seed=seed)
         precision = precision_at_k(matrix, relevant, k) if k < n else None
         results.append(
             MetricScore(
