@@ -1,0 +1,166 @@
+"""Benchmark of the vibration engines; prints figures, asserts nothing.
+
+Figures: materials per second per engine over a list (default conformer
+ensembles, all cores, ensembles included), and seconds per single-conformer
+GFN2-xTB Hessian of a 19-heavy-atom musk (HHCB, C18H26O), ours against
+ASE's ase.vibrations.Vibrations driving tblite's ASE calculator with the same
+settings, timed in the same run.
+
+Run: python -m library.vibration.bench  (uses the fixed benchmark set)
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import tempfile
+import time
+from concurrent.futures import ProcessPoolExecutor
+
+import numpy as np
+
+HESSIAN_MATERIAL = ("HHCB (hexahydro-hexamethyl-cyclopenta[g]benzopyran musk)",
+                    "CC1COCc2cc3c(cc21)C(C)(C)C(C)C3(C)C")
+
+
+def _one_material(args) -> tuple[str, int, str, float, float]:
+    smiles, engine = args
+    from library.conformers import ensemble
+    from library.vibration.spectrum import fingerprint, spectrum
+
+    start = time.perf_counter()
+    try:
+        ens = ensemble(smiles)
+        middle = time.perf_counter()
+        fingerprint(spectrum(ens, engine=engine, processes=1))
+        end = time.perf_counter()
+        return smiles, len(ens.members), "", middle - start, end - middle
+    except ValueError as error:
+        now = time.perf_counter()
+        return smiles, 0, str(error), now - start, 0.0
+
+
+def _throughput(smiles_list, engine, processes, say) -> dict:
+    jobs = [(s, engine) for s in smiles_list]
+    start = time.perf_counter()
+    if processes == 1:
+        rows = [_one_material(job) for job in jobs]
+    else:
+        with ProcessPoolExecutor(processes) as pool:
+            rows = list(pool.map(_one_material, jobs))
+    wall = time.perf_counter() - start
+    done = [r for r in rows if not r[2]]
+    failed = [r for r in rows if r[2]]
+    figures = {
+        "materials": len(done),
+        "failed": len(failed),
+        "conformers": sum(r[1] for r in done),
+        "wall_s": wall,
+        "materials_per_s": len(done) / wall if wall > 0 else float("nan"),
+        "ensemble_cpu_s": sum(r[3] for r in done),
+        "spectrum_cpu_s": sum(r[4] for r in done),
+    }
+    say(f"[{engine}] {len(done)} materials ({figures['conformers']} conformers, {len(failed)} failed) "
+        f"in {wall:.2f} s on {processes} processes: {figures['materials_per_s']:.2f} materials/s; "
+        f"per-material time in workers: ensembles {figures['ensemble_cpu_s']:.2f} s, "
+        f"spectra {figures['spectrum_cpu_s']:.2f} s")
+    for smiles, _, message, _, _ in failed[:5]:
+        say(f"    failed {smiles}: {message}")
+    return figures
+
+
+def _hessian_timings(say) -> dict:
+    from rdkit import Chem
+    from rdkit.Chem import AllChem
+
+    from library.vibration import gfn2
+    from library.vibration.normal_modes import analyze, atomic_masses_amu
+
+    name, smiles = HESSIAN_MATERIAL
+    mol = Chem.AddHs(Chem.MolFromSmiles(smiles))
+    AllChem.EmbedMolecule(mol, randomSeed=0xC0FFEE)
+    AllChem.MMFFOptimizeMolecule(mol, maxIters=2000)
+    model = gfn2.TightBindingModel.from_mol(mol)
+    start = time.perf_counter()
+    positions, _, gradient = gfn2.optimize(model, mol.GetConformer().GetPositions(), mol=mol)
+    optimize_s = time.perf_counter() - start
+    masses = atomic_masses_amu(mol)
+    say(f"[gfn2] {name}: {mol.GetNumHeavyAtoms()} heavy atoms, {mol.GetNumAtoms()} atoms; "
+        f"tight optimization {optimize_s:.2f} s (gradient norm {np.linalg.norm(gradient):.1e} kcal/mol/A)")
+
+    figures = {"optimize_s": optimize_s}
+    ours = {}
+    for processes in (1, os.cpu_count() or 1):
+        start = time.perf_counter()
+        hessian, _ = gfn2.hessian_and_dipole_derivatives(model, positions, processes=processes)
+        elapsed = time.perf_counter() - start
+        ours[processes] = analyze(hessian, positions, masses).frequencies_cm1
+        figures[f"olibra_hessian_s_{processes}proc"] = elapsed
+        say(f"[gfn2] olibra Hessian + dipole derivatives ({6 * mol.GetNumAtoms()} single points, "
+            f"{processes} process(es)): {elapsed:.2f} s")
+
+    try:
+        from ase import Atoms
+        from ase.vibrations import Vibrations
+        from tblite.ase import TBLite
+    except ImportError as error:  # pragma: no cover
+        say(f"[gfn2] ASE route skipped: {error}")
+        return figures
+    atoms = Atoms(numbers=[a.GetAtomicNum() for a in mol.GetAtoms()], positions=positions)
+    atoms.set_masses(masses)
+    atoms.calc = TBLite(method="GFN2-xTB", accuracy=model.accuracy,
+                        electronic_temperature=model.electronic_temperature_k, verbosity=0)
+    gfn2.set_openmp_threads(os.cpu_count() or 1)  # let the serial ASE route use every core
+    try:
+        with tempfile.TemporaryDirectory() as scratch:
+            start = time.perf_counter()
+            vibrations = Vibrations(atoms, delta=5.0e-3, nfree=2, name=os.path.join(scratch, "vib"))
+            vibrations.run()
+            reference = vibrations.get_vibrations().get_frequencies()
+            ase_s = time.perf_counter() - start
+    finally:
+        gfn2.set_openmp_threads(1)
+    real = np.sort(reference.real[np.abs(reference.imag) < 1e-9])[-len(ours[1]):]
+    figures["ase_hessian_s"] = ase_s
+    best = min(v for k, v in figures.items() if k.startswith("olibra_hessian_s"))
+    figures["speedup_vs_ase"] = ase_s / best
+    figures["max_frequency_difference_vs_ase_cm1"] = float(np.abs(np.sort(ours[1]) - real).max())
+    say(f"[gfn2] ASE Vibrations with tblite's ASE calculator (same delta 0.005 A, central, "
+        f"{os.cpu_count()} OpenMP threads): {ase_s:.2f} s; olibra is {figures['speedup_vs_ase']:.2f}x faster; "
+        f"largest frequency difference above the 6 rigid-body modes "
+        f"{figures['max_frequency_difference_vs_ase_cm1']:.2f} cm^-1")
+    return figures
+
+
+def run(smiles_list, *, engines=("mmff", "gfn2"), processes: int | None = None, out=sys.stdout,
+        gfn2_materials: int = 4) -> dict:
+    """Print and return throughput per engine and the GFN2 single-conformer Hessian timing.
+
+    mmff runs over the whole list; gfn2 (tens of seconds per material) over
+    the first `gfn2_materials` entries only. `processes` defaults to all cores.
+    """
+
+    def say(text: str) -> None:
+        print(text, file=out, flush=True)
+
+    processes = processes or os.cpu_count() or 1
+    smiles_list = list(smiles_list)
+    figures: dict = {"processes": processes}
+    say(f"== vibration benchmark: {len(smiles_list)} materials, {processes} processes ==")
+    for engine in engines:
+        subset = smiles_list if engine == "mmff" else smiles_list[:gfn2_materials]
+        figures[engine] = _throughput(subset, engine, processes, say)
+    if "gfn2" in engines:
+        figures["gfn2_hessian"] = _hessian_timings(say)
+    return figures
+
+
+def main(argv: list[str] | None = None) -> int:
+    from library.benchmark_set import benchmark_materials
+
+    run([smiles for _, smiles in benchmark_materials()])
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

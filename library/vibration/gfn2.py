@@ -1,0 +1,322 @@
+"""GFN2-xTB vibrations through tblite: tight optimization, semi-numerical Hessian, IR intensities.
+
+GFN2-xTB: J. Chem. Theory Comput. 15, 1652 (2019). tblite works in bohr and
+hartree; everything leaving this module is in angstrom, kcal/mol and cm^-1
+(conversions in :mod:`library.units`).
+
+The Hessian is built from central differences of analytic gradients. Every
+displaced single point restarts from the converged wavefunction of the
+reference geometry (``Calculator.singlepoint(reference, copy=True)``), and
+the 6N displaced single points can be shared among worker processes that each
+run tblite single-threaded. The dipole moment of each displaced point gives
+the dipole derivatives for infrared intensities in the same pass.
+"""
+
+from __future__ import annotations
+
+import ctypes
+import ctypes.util
+import importlib.metadata
+import multiprocessing
+import os
+
+import numpy as np
+import scipy.optimize
+from rdkit import Chem
+
+from library import units
+from library.vibration._threads import single_threaded_blas
+from library.vibration.errors import NotAMinimumError, VibrationInputError
+from library.vibration.normal_modes import analyze, atomic_masses_amu, ir_intensities_km_mol
+from library.vibration.result import ConformerVibrations
+
+try:
+    TBLITE_VERSION = importlib.metadata.version("tblite")
+except importlib.metadata.PackageNotFoundError:  # pragma: no cover - optional dependency
+    TBLITE_VERSION = None
+
+ENGINE_NAME = "gfn2-xtb"
+ENGINE_VERSION = f"GFN2-xTB (tblite {TBLITE_VERSION}); olibra vibration 1"
+
+DEFAULTS = {
+    "accuracy": 0.01,
+    "electronic_temperature_k": 300.0,
+    "step_a": 5.0e-3,
+    "gradient_tolerance_kcal_mol_a": 0.05,
+    "imaginary_tolerance_cm1": 20.0,
+    "max_reoptimizations": 2,
+}
+
+
+def parameters(**knobs) -> dict:
+    """JSON-able settings of this engine (defaults overridden by `knobs`), hashed for staleness."""
+    unknown = set(knobs) - set(DEFAULTS) - {"processes"}
+    if unknown:
+        raise VibrationInputError(f"unknown GFN2 engine option(s) {sorted(unknown)}; known: {sorted(DEFAULTS)}")
+    merged = {**DEFAULTS, **{k: v for k, v in knobs.items() if k != "processes"}}
+    return {"engine": ENGINE_NAME, "engine_version": ENGINE_VERSION, **merged}
+
+
+def _require_tblite():
+    try:
+        from tblite.interface import Calculator
+    except ImportError as error:  # pragma: no cover - depends on the installation
+        raise VibrationInputError(
+            "engine 'gfn2' needs the tblite package: pip install 'olibra[xtb]' (tblite>=0.4)") from error
+    return Calculator
+
+
+def _boltzmann_hartree_per_k() -> float:
+    return units.BOLTZMANN_KCAL_PER_MOL_K / units.HARTREE_TO_KCAL_PER_MOL
+
+
+class TightBindingModel:
+    """A GFN2-xTB calculator for one molecule; positions are (N, 3) in angstrom.
+
+    energy in kcal/mol, gradient in kcal/mol/A, dipole in e*angstrom.
+    """
+
+    def __init__(self, numbers: np.ndarray, positions_a: np.ndarray, *, charge: int = 0, unpaired: int = 0,
+                 accuracy: float = 0.01, electronic_temperature_k: float = 300.0):
+        calculator_class = _require_tblite()
+        set_openmp_threads(1)
+        self.numbers = np.asarray(numbers, dtype=int)
+        self.charge = charge
+        self.unpaired = unpaired
+        self.accuracy = accuracy
+        self.electronic_temperature_k = electronic_temperature_k
+        try:
+            self.calculator = calculator_class(
+                "GFN2-xTB", self.numbers, np.asarray(positions_a, dtype=float) * units.ANGSTROM_TO_BOHR,
+                charge=float(charge), uhf=int(unpaired))
+        except Exception as error:  # tblite raises its own ValueError/RuntimeError types
+            raise VibrationInputError(f"GFN2-xTB cannot set up this structure: {error}") from error
+        self.calculator.set("verbosity", 0)
+        self.calculator.set("accuracy", accuracy)
+        self.calculator.set("temperature", electronic_temperature_k * _boltzmann_hartree_per_k())
+        self.reference = None
+
+    @classmethod
+    def from_mol(cls, mol: Chem.Mol, **knobs) -> "TightBindingModel":
+        """Set up from an RDKit molecule with explicit hydrogens and one 3D conformer."""
+        numbers = np.array([a.GetAtomicNum() for a in mol.GetAtoms()])
+        if numbers.max() > 86:
+            raise VibrationInputError("GFN2-xTB is parametrized up to radon (Z = 86)")
+        charge = Chem.GetFormalCharge(mol)
+        unpaired = sum(a.GetNumRadicalElectrons() for a in mol.GetAtoms())
+        return cls(numbers, mol.GetConformer().GetPositions(), charge=charge, unpaired=unpaired, **knobs)
+
+    def _run(self, positions_a: np.ndarray, *, restart_from_reference: bool):
+        self.calculator.update(np.asarray(positions_a, dtype=float).reshape(-1, 3) * units.ANGSTROM_TO_BOHR)
+        try:
+            if restart_from_reference and self.reference is not None:
+                return self.calculator.singlepoint(self.reference, copy=True)
+            self.reference = self.calculator.singlepoint(self.reference)
+            return self.reference
+        except Exception as error:
+            raise VibrationInputError(f"GFN2-xTB single point failed (SCC not converged?): {error}") from error
+
+    def energy_gradient(self, positions_a: np.ndarray) -> tuple[float, np.ndarray]:
+        """Energy (kcal/mol) and flat gradient (kcal/mol/A) at `positions_a` (angstrom)."""
+        result = self._run(positions_a, restart_from_reference=False)
+        energy = result.get("energy") * units.HARTREE_TO_KCAL_PER_MOL
+        gradient = result.get("gradient").ravel() * units.HARTREE_PER_BOHR_TO_KCAL_PER_MOL_A
+        return float(energy), gradient
+
+    def displaced(self, positions_a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Flat gradient (kcal/mol/A) and dipole (e*angstrom) at a point near the reference geometry."""
+        result = self._run(positions_a, restart_from_reference=True)
+        gradient = result.get("gradient").ravel() * units.HARTREE_PER_BOHR_TO_KCAL_PER_MOL_A
+        dipole = result.get("dipole") * units.E_BOHR_TO_E_ANGSTROM
+        return gradient, dipole
+
+    def settings(self) -> dict:
+        return {"numbers": self.numbers, "charge": self.charge, "unpaired": self.unpaired,
+                "accuracy": self.accuracy, "electronic_temperature_k": self.electronic_temperature_k}
+
+
+def set_openmp_threads(threads: int) -> None:
+    """Set the OpenMP thread count tblite uses in this process (GNU OpenMP runtime).
+
+    tblite parallelizes one single point with OpenMP. For molecules of odorant
+    size the gain is small, and on a busy machine spinning OpenMP barriers
+    stall badly, so olibra runs tblite single-threaded and spreads
+    independent single points over processes instead.
+    """
+    name = ctypes.util.find_library("gomp")
+    if name:
+        try:
+            ctypes.CDLL(name).omp_set_num_threads(int(threads))
+        except (OSError, AttributeError):
+            pass
+
+
+def _single_threaded_openmp() -> None:
+    os.environ["OMP_NUM_THREADS"] = "1"
+    set_openmp_threads(1)
+
+
+def _displacement_chunk(args) -> tuple[np.ndarray, np.ndarray]:
+    settings, x0, step_a, coordinates = args
+    numbers = settings.pop("numbers")
+    model = TightBindingModel(numbers, x0.reshape(-1, 3), **settings)
+    model.energy_gradient(x0)  # converged reference wavefunction for restarts
+    return _displacements(model, x0, step_a, coordinates)
+
+
+def _displacements(model: TightBindingModel, x0: np.ndarray, step_a: float, coordinates) -> tuple:
+    gradients = np.empty((len(coordinates), x0.size))
+    dipoles = np.empty((len(coordinates), 3))
+    for row, i in enumerate(coordinates):
+        forward = x0.copy()
+        forward[i] += step_a
+        backward = x0.copy()
+        backward[i] -= step_a
+        g_forward, mu_forward = model.displaced(forward)
+        g_backward, mu_backward = model.displaced(backward)
+        gradients[row] = (g_forward - g_backward) / (2.0 * step_a)
+        dipoles[row] = (mu_forward - mu_backward) / (2.0 * step_a)
+    return gradients, dipoles
+
+
+def hessian_and_dipole_derivatives(model: TightBindingModel, positions_a: np.ndarray, *, step_a: float = 5.0e-3,
+                                   processes: int | None = 1) -> tuple[np.ndarray, np.ndarray]:
+    """Cartesian Hessian (kcal/mol/A^2) and dipole derivatives (e, shape (3N, 3)).
+
+    Central differences with displacement `step_a` (angstrom). With
+    `processes` > 1 the coordinates are split among forked workers that run
+    tblite single-threaded; `None` uses every core.
+    """
+    x0 = np.asarray(positions_a, dtype=float).ravel()
+    n = x0.size
+    if processes is None:
+        processes = os.cpu_count() or 1
+    processes = max(1, min(int(processes), n))
+    if processes == 1 or multiprocessing.current_process().daemon:
+        model.energy_gradient(x0)
+        gradients, dipoles = _displacements(model, x0, step_a, range(n))
+    else:
+        chunks = [list(c) for c in np.array_split(np.arange(n), processes)]
+        context = multiprocessing.get_context("fork")
+        with context.Pool(processes, initializer=_single_threaded_openmp) as pool:
+            parts = pool.map(_displacement_chunk, [(model.settings(), x0, step_a, c) for c in chunks])
+        gradients = np.vstack([p[0] for p in parts])
+        dipoles = np.vstack([p[1] for p in parts])
+    return 0.5 * (gradients + gradients.T), dipoles
+
+
+def _initial_inverse_hessian(mol: Chem.Mol | None, positions_a: np.ndarray) -> np.ndarray | None:
+    """Inverse of the MMFF94 Hessian at the start geometry, made positive definite, or None.
+
+    A force-field Hessian is a far better first guess for a quasi-Newton
+    search than a multiple of the identity (the GFN2 optimization of a
+    19-heavy-atom musk needed about 4 times fewer gradients with it).
+    Eigenvalues are floored at 50 kcal/mol/A^2 so the guess stays positive
+    definite, including the six rigid-body directions.
+    """
+    if mol is None:
+        return None
+    from library.vibration.mmff import ForceFieldModel
+    from library.vibration.errors import MissingParametersError
+
+    try:
+        hessian = ForceFieldModel(mol).hessian(np.asarray(positions_a, dtype=float).ravel())
+    except MissingParametersError:
+        return None
+    eigenvalues, vectors = np.linalg.eigh(hessian)
+    eigenvalues = np.maximum(np.abs(eigenvalues), 50.0)
+    inverse = (vectors / eigenvalues) @ vectors.T
+    return 0.5 * (inverse + inverse.T)
+
+
+def optimize(model: TightBindingModel, positions_a: np.ndarray, *, gradient_tolerance_kcal_mol_a: float = 0.05,
+             mol: Chem.Mol | None = None, max_iterations: int = 2000) -> tuple[np.ndarray, float, np.ndarray]:
+    """Minimize the GFN2-xTB energy from `positions_a` (angstrom) with scipy's quasi-Newton methods.
+
+    With `mol` given (same atom order) the search is scipy's BFGS seeded with
+    the MMFF94 Hessian; otherwise L-BFGS-B. Stops when the largest gradient
+    component is below `gradient_tolerance_kcal_mol_a` / sqrt(3N), so the
+    Euclidean norm is at most the tolerance (kcal/mol/A). Returns positions
+    (N, 3) in angstrom, energy (kcal/mol) and flat gradient (kcal/mol/A).
+    """
+    x0 = np.asarray(positions_a, dtype=float).ravel()
+    component_tolerance = gradient_tolerance_kcal_mol_a / np.sqrt(x0.size)
+    inverse_hessian = _initial_inverse_hessian(mol, x0)
+
+    def objective(x):
+        return model.energy_gradient(x)
+
+    best = x0
+    for attempt in range(3):
+        if inverse_hessian is not None and attempt == 0:
+            outcome = scipy.optimize.minimize(
+                objective, best, jac=True, method="BFGS",
+                options={"gtol": component_tolerance, "maxiter": max_iterations, "hess_inv0": inverse_hessian})
+        else:
+            outcome = scipy.optimize.minimize(
+                objective, best, jac=True, method="L-BFGS-B",
+                options={"gtol": component_tolerance, "ftol": 1e-16, "maxiter": max_iterations, "maxcor": 30})
+        best = outcome.x
+        energy, gradient = model.energy_gradient(best)
+        if np.linalg.norm(gradient) <= gradient_tolerance_kcal_mol_a:
+            break
+    return best.reshape(-1, 3), energy, gradient
+
+
+@single_threaded_blas
+def vibrations(mol: Chem.Mol, *, conf_id: int = -1, accuracy: float = 0.01, electronic_temperature_k: float = 300.0,
+               step_a: float = 5.0e-3, gradient_tolerance_kcal_mol_a: float = 0.05,
+               imaginary_tolerance_cm1: float = 20.0, max_reoptimizations: int = 2,
+               processes: int | None = 1) -> ConformerVibrations:
+    """GFN2-xTB harmonic vibrations and IR intensities (km/mol) of one conformer.
+
+    The starting geometry (usually an MMFF conformer) is optimized with
+    GFN2-xTB until the gradient norm is below `gradient_tolerance_kcal_mol_a`;
+    the Hessian comes from central differences (`step_a`, angstrom) of analytic
+    gradients at SCC `accuracy` (tblite's knob; smaller is tighter).
+    A mode below -`imaginary_tolerance_cm1` triggers a displaced
+    re-optimization, at most `max_reoptimizations` times, then
+    :class:`NotAMinimumError`.
+    """
+    from library.vibration.mmff import single_conformer_copy
+
+    work = single_conformer_copy(mol, conf_id)
+    masses = atomic_masses_amu(work)
+    model = TightBindingModel.from_mol(work, accuracy=accuracy, electronic_temperature_k=electronic_temperature_k)
+    positions = work.GetConformer().GetPositions()
+    reoptimizations = 0
+    notes: list[str] = []
+    while True:
+        positions, energy, gradient = optimize(model, positions, mol=work,
+                                               gradient_tolerance_kcal_mol_a=gradient_tolerance_kcal_mol_a)
+        hessian, dipole_derivatives = hessian_and_dipole_derivatives(model, positions, step_a=step_a,
+                                                                     processes=processes)
+        modes = analyze(hessian, positions, masses)
+        most_negative = float(modes.frequencies_cm1.min())
+        if most_negative >= -imaginary_tolerance_cm1:
+            break
+        if reoptimizations >= max_reoptimizations:
+            raise NotAMinimumError(
+                f"GFN2-xTB geometry keeps an imaginary mode at {most_negative:.1f} cm^-1 after "
+                f"{reoptimizations} displaced re-optimizations; check the structure")
+        reoptimizations += 1
+        direction = modes.displacements[int(np.argmin(modes.frequencies_cm1))]
+        positions = positions + 0.1 * direction / np.abs(direction).max()
+    residual = float(np.linalg.norm(gradient))
+    if reoptimizations:
+        notes.append(f"saddle point re-optimized {reoptimizations} time(s) along its imaginary mode")
+    if modes.n_imaginary:
+        notes.append(f"{modes.n_imaginary} small imaginary mode(s) above -{imaginary_tolerance_cm1} cm^-1 kept "
+                     "(numerical noise of a flat mode)")
+    if residual > gradient_tolerance_kcal_mol_a:
+        notes.append(f"residual gradient {residual:.2e} kcal/mol/A above tolerance {gradient_tolerance_kcal_mol_a:.0e}")
+    return ConformerVibrations(
+        engine=ENGINE_NAME,
+        positions_a=positions,
+        energy_kcal=energy,
+        residual_gradient_kcal_mol_a=residual,
+        modes=modes,
+        ir_intensities_km_mol=ir_intensities_km_mol(dipole_derivatives, modes),
+        reoptimizations=reoptimizations,
+        notes=tuple(notes),
+    )

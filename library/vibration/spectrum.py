@@ -1,0 +1,415 @@
+"""Conformer-averaged harmonic spectra, EVA fingerprints and band matching.
+
+A material's spectrum is the set of harmonic wavenumbers (cm^-1) of each
+conformer of its ensemble, with Boltzmann weights recomputed from the
+vibration engine's own energies. The fingerprint is the EVA descriptor
+(J. Comput.-Aided Mol. Des. 11, 143 (1997)): every mode becomes a normalized
+Gaussian of width sigma_cm1 on a fixed wavenumber grid, weighted by its
+conformer's population (and optionally its infrared intensity).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from types import ModuleType
+
+import numpy as np
+import scipy.optimize
+import scipy.signal
+from rdkit import Chem
+
+from library import units
+from library.vibration.errors import MissingParametersError, VibrationInputError
+
+ENGINES = ("mmff", "gfn2")
+
+FINGERPRINT_DEFAULTS = {
+    "sigma_cm1": 10.0,
+    "min_cm1": 0.0,
+    "max_cm1": 4000.0,
+    "step_cm1": 5.0,
+    "intensity_weighting": "none",
+    "normalization": "unit",
+}
+_INTENSITY_WEIGHTINGS = ("none", "ir")
+_NORMALIZATIONS = ("unit", "none", "area", "max")
+
+
+def engine_module(engine: str) -> ModuleType:
+    """The module implementing `engine` ('mmff' or 'gfn2'); it exposes ENGINE_NAME, ENGINE_VERSION, parameters()."""
+    if engine == "mmff":
+        from library.vibration import mmff
+
+        return mmff
+    if engine == "gfn2":
+        from library.vibration import gfn2
+
+        return gfn2
+    raise VibrationInputError(f"unknown vibration engine {engine!r}; choose 'mmff' (fast) or 'gfn2' (GFN2-xTB)")
+
+
+def record_parameters(engine: str = "mmff", *, temperature_k: float = 298.15, **ensemble_knobs) -> dict:
+    """JSON-able description of everything a vibration record depends on (hashed for staleness).
+
+    Includes the conformer-ensemble settings (`ensemble_knobs`, passed to
+    library.conformers.parameters), the engine's settings and the default
+    fingerprint settings.
+    """
+    from library import conformers
+
+    return {
+        "ensemble": conformers.parameters(**ensemble_knobs),
+        "engine": engine_module(engine).parameters(),
+        "temperature_k": float(temperature_k),
+        "fingerprint": dict(FINGERPRINT_DEFAULTS),
+    }
+
+
+def parameters(*, engine: str = "mmff", **knobs) -> dict:
+    """Same as :func:`record_parameters` (contract name)."""
+    return record_parameters(engine, **knobs)
+
+
+@dataclass(frozen=True, eq=False)
+class ConformerSpectrum:
+    """Harmonic wavenumbers of one conformer.
+
+    frequencies_cm1: ascending wavenumbers (cm^-1); imaginary modes negative.
+    ir_intensities_km_mol: same length, or None when the engine gives no dipoles.
+    energy_kcal: engine energy relative to the lowest conformer of the same stereoisomer (kcal/mol).
+    weight: population within the material (all weights sum to 1).
+    residual_gradient_kcal_mol_a: gradient norm where the Hessian was taken (kcal/mol/A).
+    """
+
+    frequencies_cm1: np.ndarray
+    ir_intensities_km_mol: np.ndarray | None
+    energy_kcal: float
+    weight: float
+    stereoisomer: int
+    residual_gradient_kcal_mol_a: float
+
+    @property
+    def n_imaginary(self) -> int:
+        """Number of imaginary (negative) modes."""
+        return int((self.frequencies_cm1 < 0).sum())
+
+
+@dataclass(frozen=True, eq=False)
+class VibrationSpectrum:
+    """Harmonic spectrum of a material: its conformers' modes and Boltzmann weights."""
+
+    engine: str
+    engine_version: str
+    temperature_k: float
+    conformers: tuple[ConformerSpectrum, ...]
+    notes: tuple[str, ...] = ()
+
+    @property
+    def has_ir(self) -> bool:
+        """True when every conformer carries infrared intensities."""
+        return all(c.ir_intensities_km_mol is not None for c in self.conformers)
+
+    @property
+    def max_residual_gradient_kcal_mol_a(self) -> float:
+        """Largest residual gradient norm over the conformers (kcal/mol/A)."""
+        return max(c.residual_gradient_kcal_mol_a for c in self.conformers)
+
+    def to_arrays(self) -> dict[str, np.ndarray]:
+        """Flat float32 arrays for storage; modes of all conformers concatenated."""
+        arrays = {
+            "frequencies_cm1": np.concatenate([c.frequencies_cm1 for c in self.conformers]).astype(np.float32),
+            "mode_counts": np.array([len(c.frequencies_cm1) for c in self.conformers], dtype=np.float32),
+            "weights": np.array([c.weight for c in self.conformers], dtype=np.float32),
+            "energies_kcal": np.array([c.energy_kcal for c in self.conformers], dtype=np.float32),
+            "stereoisomers": np.array([c.stereoisomer for c in self.conformers], dtype=np.float32),
+            "residual_gradients_kcal_mol_a": np.array(
+                [c.residual_gradient_kcal_mol_a for c in self.conformers], dtype=np.float32),
+        }
+        if self.has_ir:
+            arrays["ir_intensities_km_mol"] = np.concatenate(
+                [c.ir_intensities_km_mol for c in self.conformers]).astype(np.float32)
+        return arrays
+
+    def summary(self) -> dict:
+        """JSON-able overview: engine, conformer count, main bands, worst residual gradient, notes."""
+        bands = main_bands(self, n=8)
+        return {
+            "engine": self.engine,
+            "engine_version": self.engine_version,
+            "temperature_k": self.temperature_k,
+            "conformer_count": len(self.conformers),
+            "stereoisomer_count": len({c.stereoisomer for c in self.conformers}),
+            "mode_count": int(len(self.conformers[0].frequencies_cm1)),
+            "has_ir": self.has_ir,
+            "main_bands_cm1": [round(b.position_cm1, 1) for b in bands],
+            "main_band_heights": [round(b.relative_height, 3) for b in bands],
+            "imaginary_mode_count": sum(c.n_imaginary for c in self.conformers),
+            "max_residual_gradient_kcal_mol_a": float(self.max_residual_gradient_kcal_mol_a),
+            "notes": list(self.notes),
+        }
+
+    @classmethod
+    def from_arrays(cls, arrays: dict[str, np.ndarray], summary: dict) -> "VibrationSpectrum":
+        """Rebuild a spectrum from :meth:`to_arrays` output and :meth:`summary`."""
+        try:
+            counts = np.asarray(arrays["mode_counts"]).astype(int)
+            frequencies = np.asarray(arrays["frequencies_cm1"], dtype=float)
+            intensities = arrays.get("ir_intensities_km_mol")
+            offsets = np.concatenate([[0], np.cumsum(counts)])
+            if offsets[-1] != len(frequencies):
+                raise VibrationInputError("stored mode counts do not add up to the stored frequencies")
+            members = []
+            for i in range(len(counts)):
+                part = slice(offsets[i], offsets[i + 1])
+                members.append(ConformerSpectrum(
+                    frequencies_cm1=frequencies[part],
+                    ir_intensities_km_mol=None if intensities is None else np.asarray(intensities[part], dtype=float),
+                    energy_kcal=float(arrays["energies_kcal"][i]),
+                    weight=float(arrays["weights"][i]),
+                    stereoisomer=int(arrays["stereoisomers"][i]),
+                    residual_gradient_kcal_mol_a=float(arrays["residual_gradients_kcal_mol_a"][i]),
+                ))
+            return cls(engine=summary["engine"], engine_version=summary["engine_version"],
+                       temperature_k=float(summary["temperature_k"]), conformers=tuple(members),
+                       notes=tuple(summary.get("notes", ())))
+        except KeyError as missing:
+            raise VibrationInputError(f"stored vibration record lacks {missing}; recompute it") from missing
+
+
+def boltzmann_weights(energies_kcal: np.ndarray, stereoisomers: np.ndarray, *, temperature_k: float = 298.15
+                      ) -> np.ndarray:
+    """Populations from energies (kcal/mol): Boltzmann within each stereoisomer, stereoisomers equal.
+
+    A material with unassigned stereocenters is an unknown mixture, so each
+    stereoisomer gets the same total weight; within one, weights follow
+    exp(-(E - E_min) / (R T)).
+    """
+    energies = np.asarray(energies_kcal, dtype=float)
+    groups = np.asarray(stereoisomers)
+    if temperature_k <= 0:
+        raise VibrationInputError(f"temperature must be positive (kelvin), got {temperature_k}")
+    rt = units.BOLTZMANN_KCAL_PER_MOL_K * temperature_k
+    weights = np.empty_like(energies)
+    labels = np.unique(groups)
+    for label in labels:
+        members = groups == label
+        factors = np.exp(-(energies[members] - energies[members].min()) / rt)
+        weights[members] = factors / factors.sum() / len(labels)
+    return weights
+
+
+def spectrum(ens, *, engine: str = "mmff", temperature_k: float = 298.15, processes: int | None = 1,
+             **engine_knobs) -> VibrationSpectrum:
+    """Harmonic spectrum of every conformer of `ens` (a ConformerEnsemble, a Mol or a SMILES).
+
+    Each conformer is re-optimized and analyzed by `engine` ('mmff' default,
+    or 'gfn2' which adds IR intensities). Boltzmann weights at `temperature_k`
+    (kelvin) come from the same engine's energies, with stereoisomers weighted
+    equally. `processes` is passed to the gfn2 Hessian (workers per Hessian).
+    """
+    from library import conformers as conformer_module
+
+    if isinstance(ens, (str, Chem.Mol)):
+        ens = conformer_module.ensemble(ens)
+    if not hasattr(ens, "members") or not ens.members:
+        raise VibrationInputError("expected a ConformerEnsemble with at least one conformer "
+                                  "(library.conformers.ensemble(smiles))")
+    module = engine_module(engine)
+    if engine == "mmff" and getattr(ens, "force_field", "MMFF94") != "MMFF94":
+        smiles = Chem.MolToSmiles(Chem.RemoveHs(ens.members[0].mol))
+        raise MissingParametersError(
+            f"MMFF94 has no parameters for {smiles} (its conformers needed {ens.force_field}); "
+            "compute its vibrations with engine='gfn2' instead")
+    if engine == "gfn2":
+        engine_knobs.setdefault("processes", processes)
+    results = [module.vibrations(member.mol, **engine_knobs) for member in ens.members]
+    stereoisomers = np.array([member.stereoisomer for member in ens.members])
+    energies = np.array([r.energy_kcal for r in results])
+    weights = boltzmann_weights(energies, stereoisomers, temperature_k=temperature_k)
+    relative = energies.copy()
+    for label in np.unique(stereoisomers):
+        relative[stereoisomers == label] -= energies[stereoisomers == label].min()
+    notes = []
+    for index, r in enumerate(results):
+        notes.extend(f"conformer {index}: {note}" for note in r.notes)
+    members = tuple(
+        ConformerSpectrum(
+            frequencies_cm1=r.frequencies_cm1,
+            ir_intensities_km_mol=r.ir_intensities_km_mol,
+            energy_kcal=float(e),
+            weight=float(w),
+            stereoisomer=int(s),
+            residual_gradient_kcal_mol_a=r.residual_gradient_kcal_mol_a,
+        )
+        for r, e, w, s in zip(results, relative, weights, stereoisomers)
+    )
+    return VibrationSpectrum(engine=module.ENGINE_NAME, engine_version=module.ENGINE_VERSION,
+                             temperature_k=float(temperature_k), conformers=members, notes=tuple(notes))
+
+
+def grid_cm1(*, min_cm1: float = 0.0, max_cm1: float = 4000.0, step_cm1: float = 5.0) -> np.ndarray:
+    """The fingerprint grid in cm^-1: min_cm1, min_cm1 + step_cm1, ..., max_cm1 (801 points by default)."""
+    if step_cm1 <= 0 or max_cm1 <= min_cm1:
+        raise VibrationInputError(
+            f"fingerprint grid needs step_cm1 > 0 and max_cm1 > min_cm1, got {min_cm1}, {max_cm1}, {step_cm1}")
+    count = int(math.floor((max_cm1 - min_cm1) / step_cm1 + 1e-9)) + 1
+    return min_cm1 + step_cm1 * np.arange(count)
+
+
+def _modes_and_amplitudes(spec: VibrationSpectrum, intensity_weighting: str) -> tuple[np.ndarray, np.ndarray]:
+    if intensity_weighting == "auto":
+        intensity_weighting = "ir" if spec.has_ir else "none"
+    if intensity_weighting not in _INTENSITY_WEIGHTINGS:
+        raise VibrationInputError(
+            f"intensity_weighting must be one of {_INTENSITY_WEIGHTINGS}, got {intensity_weighting!r}")
+    if intensity_weighting == "ir" and not spec.has_ir:
+        raise VibrationInputError(
+            f"this spectrum ({spec.engine}) has no infrared intensities; use intensity_weighting='none' "
+            "or compute it with engine='gfn2'")
+    positions, amplitudes = [], []
+    for c in spec.conformers:
+        real = c.frequencies_cm1 > 0  # imaginary modes carry no band
+        positions.append(c.frequencies_cm1[real])
+        if intensity_weighting == "ir":
+            amplitudes.append(c.weight * c.ir_intensities_km_mol[real])
+        else:
+            amplitudes.append(np.full(int(real.sum()), c.weight))
+    return np.concatenate(positions), np.concatenate(amplitudes)
+
+
+def _smoothed(positions_cm1, amplitudes, grid, sigma_cm1) -> np.ndarray:
+    """Sum of area-normalized Gaussians (width sigma_cm1) on `grid`, in 1/cm^-1 per unit amplitude."""
+    curve = np.zeros(grid.shape)
+    norm = 1.0 / (sigma_cm1 * math.sqrt(2.0 * math.pi))
+    for start in range(0, len(positions_cm1), 512):
+        p = positions_cm1[start:start + 512, None]
+        a = amplitudes[start:start + 512, None]
+        curve += (a * norm * np.exp(-0.5 * ((grid[None, :] - p) / sigma_cm1) ** 2)).sum(axis=0)
+    return curve
+
+
+def fingerprint(spec: VibrationSpectrum, *, sigma_cm1: float = 10.0, min_cm1: float = 0.0, max_cm1: float = 4000.0,
+                step_cm1: float = 5.0, intensity_weighting: str = "none", normalization: str = "unit") -> np.ndarray:
+    """EVA fingerprint (float32, one value per grid point) of a spectrum.
+
+    Each real mode adds a Gaussian of standard deviation `sigma_cm1` and unit
+    area times its conformer weight (times its IR intensity in km/mol when
+    `intensity_weighting` is 'ir'). With normalization 'none' the values are
+    a band density in modes per cm^-1 (they sum, times step_cm1, to the
+    number of modes inside the grid); 'unit' scales to Euclidean norm 1, 'area'
+    to sum * step_cm1 = 1, 'max' to a largest value of 1. The default grid is
+    0-4000 cm^-1 in 5 cm^-1 steps (801 points).
+    """
+    if not isinstance(spec, VibrationSpectrum):
+        raise VibrationInputError(f"expected a VibrationSpectrum, got {type(spec).__name__}")
+    if sigma_cm1 <= 0:
+        raise VibrationInputError(f"sigma_cm1 must be positive, got {sigma_cm1}")
+    if normalization not in _NORMALIZATIONS:
+        raise VibrationInputError(f"normalization must be one of {_NORMALIZATIONS}, got {normalization!r}")
+    grid = grid_cm1(min_cm1=min_cm1, max_cm1=max_cm1, step_cm1=step_cm1)
+    positions, amplitudes = _modes_and_amplitudes(spec, intensity_weighting)
+    curve = _smoothed(positions, amplitudes, grid, sigma_cm1)
+    if normalization != "none":
+        scale = {"unit": np.linalg.norm(curve), "area": curve.sum() * step_cm1, "max": curve.max(initial=0.0)}[
+            normalization]
+        if scale > 0:
+            curve = curve / scale
+    return curve.astype(np.float32)
+
+
+def cosine_similarity(fp_a: np.ndarray, fp_b: np.ndarray) -> float:
+    """Cosine of two fingerprints on the same grid, in [0, 1] (fingerprints are non-negative)."""
+    a = np.asarray(fp_a, dtype=np.float64)
+    b = np.asarray(fp_b, dtype=np.float64)
+    if a.ndim != 1 or a.shape != b.shape:
+        raise VibrationInputError(
+            f"fingerprints must be 1-D and on the same grid; got shapes {a.shape} and {b.shape}")
+    norm_a, norm_b = np.linalg.norm(a), np.linalg.norm(b)
+    if not (np.isfinite(norm_a) and np.isfinite(norm_b)) or norm_a == 0 or norm_b == 0:
+        raise VibrationInputError("a fingerprint is empty (all zeros) or not finite; recompute it")
+    return float(np.clip(a @ b / (norm_a * norm_b), 0.0, 1.0))
+
+
+@dataclass(frozen=True)
+class Band:
+    """A band of the smoothed spectrum: peak position (cm^-1) and height relative to the tallest (0-1]."""
+
+    position_cm1: float
+    relative_height: float
+
+
+def main_bands(spec: VibrationSpectrum, n: int | None = 8, *, sigma_cm1: float = 10.0,
+               intensity_weighting: str = "auto", min_cm1: float = 200.0, max_cm1: float = 4000.0,
+               min_relative_height: float = 0.05) -> tuple[Band, ...]:
+    """The `n` tallest peaks of the smoothed spectrum (1 cm^-1 grid), tallest first.
+
+    Peaks are local maxima of the Boltzmann-averaged curve (IR-weighted when
+    the spectrum has intensities and `intensity_weighting` is 'auto'), at
+    least `min_relative_height` of the tallest; the far-infrared below
+    `min_cm1` (torsions, least reliable) is left out. `n=None` keeps all.
+    """
+    grid = grid_cm1(min_cm1=min_cm1, max_cm1=max_cm1, step_cm1=1.0)
+    positions, amplitudes = _modes_and_amplitudes(spec, intensity_weighting)
+    curve = _smoothed(positions, amplitudes, grid, sigma_cm1)
+    top = curve.max(initial=0.0)
+    if top <= 0:
+        return ()
+    peaks, _ = scipy.signal.find_peaks(curve, height=min_relative_height * top)
+    order = peaks[np.argsort(-curve[peaks], kind="stable")]
+    if n is not None:
+        order = order[:n]
+    return tuple(Band(float(grid[i]), float(curve[i] / top)) for i in order)
+
+
+@dataclass(frozen=True)
+class BandMatch:
+    """Result of :func:`match_bands`.
+
+    pairs: (band of A, band of B) matched one-to-one within tolerance_cm1.
+    unmatched_a / unmatched_b: bands with no partner.
+    score: 2 * len(pairs) / (bands of A + bands of B), the Dice overlap of the
+        two band lists: 1 when every band has a partner, 0 when none has.
+    """
+
+    pairs: tuple[tuple[Band, Band], ...]
+    unmatched_a: tuple[Band, ...]
+    unmatched_b: tuple[Band, ...]
+    score: float
+    tolerance_cm1: float
+
+
+def match_bands(spec_a: VibrationSpectrum, spec_b: VibrationSpectrum, *, tolerance_cm1: float = 15.0,
+                n: int | None = 12, sigma_cm1: float = 10.0, intensity_weighting: str = "auto",
+                min_cm1: float = 200.0) -> BandMatch:
+    """Pair the main bands of two spectra one-to-one when they lie within `tolerance_cm1`.
+
+    Bands come from :func:`main_bands` (same `n`, `sigma_cm1`, `min_cm1`);
+    the pairing minimizes the total wavenumber difference (optimal
+    assignment). The 0-1 score is the Dice overlap 2 * pairs / (n_a + n_b).
+    """
+    if tolerance_cm1 <= 0:
+        raise VibrationInputError(f"tolerance_cm1 must be positive, got {tolerance_cm1}")
+    bands_a = main_bands(spec_a, n, sigma_cm1=sigma_cm1, intensity_weighting=intensity_weighting, min_cm1=min_cm1)
+    bands_b = main_bands(spec_b, n, sigma_cm1=sigma_cm1, intensity_weighting=intensity_weighting, min_cm1=min_cm1)
+    pairs: list[tuple[Band, Band]] = []
+    used_a, used_b = set(), set()
+    if bands_a and bands_b:
+        a = np.array([b.position_cm1 for b in bands_a])
+        b = np.array([b.position_cm1 for b in bands_b])
+        distance = np.abs(a[:, None] - b[None, :])
+        cost = np.where(distance <= tolerance_cm1, distance, 1e6)
+        rows, cols = scipy.optimize.linear_sum_assignment(cost)
+        for i, j in zip(rows, cols):
+            if distance[i, j] <= tolerance_cm1:
+                pairs.append((bands_a[i], bands_b[j]))
+                used_a.add(i)
+                used_b.add(j)
+    total = len(bands_a) + len(bands_b)
+    return BandMatch(
+        pairs=tuple(sorted(pairs, key=lambda p: p[0].position_cm1)),
+        unmatched_a=tuple(x for i, x in enumerate(bands_a) if i not in used_a),
+        unmatched_b=tuple(x for j, x in enumerate(bands_b) if j not in used_b),
+        score=2.0 * len(pairs) / total if total else 0.0,
+        tolerance_cm1=float(tolerance_cm1),
+    )
