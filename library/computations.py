@@ -11,9 +11,14 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from functools import partial
 
+import numpy as np
+
 from library.catalogue.records import EngineStamp
 
 KINDS = ("shape", "vibration")
+# What a shape record holds besides the descriptors: the ensemble itself, so
+# that overlays need no new embedding.
+SHAPE_RECORD_LAYOUT = "descriptors+conformers/1"
 VIBRATION_ENGINES = ("mmff", "gfn2")
 
 
@@ -46,8 +51,8 @@ def stamps(plan: Plan) -> list[EngineStamp]:
 
     out = []
     if "shape" in plan.kinds:
-        out.append(EngineStamp("shape", shape.ENGINE_NAME, shape.ENGINE_VERSION,
-                               shape.parameters(**plan.ensemble_knobs)))
+        parameters = dict(shape.parameters(**plan.ensemble_knobs), stored=SHAPE_RECORD_LAYOUT)
+        out.append(EngineStamp("shape", shape.ENGINE_NAME, shape.ENGINE_VERSION, parameters))
     if "vibration" in plan.kinds:
         from library.vibration import spectrum as spectrum_module
 
@@ -68,7 +73,9 @@ def compute_material(plan: Plan, smiles: str) -> dict[str, tuple[dict, dict]]:
         from library import shape
 
         description = shape.describe(ens)
-        out["shape"] = (description.to_arrays(), description.summary())
+        arrays = description.to_arrays()
+        arrays.update(conformer_arrays(ens))
+        out["shape"] = (arrays, description.summary())
     if "vibration" in plan.kinds:
         from library.vibration import spectrum as spectrum_module
 
@@ -77,6 +84,47 @@ def compute_material(plan: Plan, smiles: str) -> dict[str, tuple[dict, dict]]:
         arrays["fingerprint"] = spectrum_module.fingerprint(result)
         out["vibration"] = (arrays, result.summary())
     return out
+
+
+def conformer_arrays(ens) -> dict[str, np.ndarray]:
+    """The ensemble as arrays: coordinates (A), weights, energies (kcal/mol), stereoisomer index, atoms."""
+    return {
+        "conformer_xyz_a": np.stack([m.mol.GetConformer(0).GetPositions() for m in ens.members]),
+        "conformer_weight": np.array([m.weight for m in ens.members]),
+        "conformer_energy_kcal": np.array([m.energy_kcal for m in ens.members]),
+        "conformer_stereoisomer": np.array([m.stereoisomer for m in ens.members]),
+        "atomic_number": np.array([a.GetAtomicNum() for a in ens.members[0].mol.GetAtoms()]),
+    }
+
+
+def ensemble_from_arrays(smiles: str, arrays: dict, *, max_members: int | None = None):
+    """Rebuild a ConformerEnsemble from a stored shape record (atom order of Chem.AddHs(MolFromSmiles))."""
+    from rdkit import Chem
+    from rdkit.Geometry import Point3D
+
+    from library.conformers import Conformer, ConformerEnsemble
+
+    template = Chem.AddHs(Chem.MolFromSmiles(smiles))
+    numbers = np.array([a.GetAtomicNum() for a in template.GetAtoms()])
+    if not np.array_equal(numbers, arrays["atomic_number"].astype(int)):
+        raise ValueError(f"stored conformers of {smiles} do not match its atoms; recompute its shape record")
+    order = np.argsort(-arrays["conformer_weight"], kind="stable")
+    if max_members is not None:
+        order = order[:max_members]
+    members = []
+    for i in order:
+        mol = Chem.Mol(template)
+        conformer = Chem.Conformer(mol.GetNumAtoms())
+        for atom, (x, y, z) in enumerate(arrays["conformer_xyz_a"][i].astype(float)):
+            conformer.SetAtomPosition(atom, Point3D(x, y, z))
+        conformer.Set3D(True)
+        mol.AddConformer(conformer, assignId=True)
+        members.append(Conformer(mol=mol, energy_kcal=float(arrays["conformer_energy_kcal"][i]),
+                                 weight=float(arrays["conformer_weight"][i]),
+                                 stereoisomer=int(arrays["conformer_stereoisomer"][i])))
+    stereoisomers = len(set(int(s) for s in arrays["conformer_stereoisomer"]))
+    return ConformerEnsemble(members=tuple(members), force_field="stored",
+                             stereoisomer_count=stereoisomers, parameters={})
 
 
 def worker(plan: Plan):

@@ -1,0 +1,268 @@
+"""Search commands: search, compare, disagreements, flag, flags, observations, scorecard."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from library.catalogue import curation, observations
+from library.catalogue.transfer import ImportFileError
+from library.cli.catalogue_commands import open_catalogue
+from library.cli.output import FORMATS, emit
+from library.search import service
+from library.search.disagreements import DIRECTIONS
+from library.search.index import METRICS
+
+SCORE_COLUMNS = ("shape", "overlay", "vibration", "blend", "structure")
+
+
+def _range(values):
+    return None if values is None else (values[0], values[1])
+
+
+def cmd_search(args) -> int:
+    catalogue = open_catalogue(args)
+    filters = service.build_filter(
+        mw_range=_range(args.mw), logp_range=_range(args.logp), must_have=args.with_odor or (),
+        must_not_have=args.without_odor or (), include_retired=args.include_retired,
+        include_restricted=args.include_restricted)
+    outcome = service.find_substitutes(
+        catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
+        rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine)
+    rows = []
+    for c in outcome.candidates:
+        row = {"rank": c.rank, "id": c.material.id, "name": c.material.name,
+               "odor": ", ".join(c.material.odors), "smiles": c.material.smiles}
+        for metric in SCORE_COLUMNS:
+            if metric in c.scores:
+                row[metric] = round(c.scores[metric], 4)
+                row[f"{metric}_rank"] = c.ranks.get(metric)
+        if c.explanation:
+            row.update(_explanation_fields(c.explanation))
+        rows.append(row)
+    columns = ["rank", "id", "name"] + [m for m in SCORE_COLUMNS if any(m in r for r in rows)]
+    if args.format != "table":
+        columns += [f"{m}_rank" for m in SCORE_COLUMNS if any(m in r for r in rows)] + ["odor", "smiles"]
+    else:
+        columns += ["odor"]
+    if args.explain:
+        columns += ["volume_ratio", "bands_matched", "bands_unmatched"]
+    if args.format == "table":
+        weight_text = f", shape weight {args.weight}" if args.metric == "blend" else ""
+        print(f"substitutes for {outcome.query.label} by {args.metric}{weight_text}:")
+    emit(rows, columns, args.format)
+    if args.format == "table":
+        if args.metric == "shape" and args.rerank_depth:
+            print(f"(top {args.rerank_depth} by moments re-ranked by Gaussian overlay)")
+        print("ranks in columns: each hit's rank under every metric; `olibra compare A B` explains a pair")
+        for note in outcome.notes:
+            print(f"note: {note}")
+        print(f"caution: {outcome.caution}")
+    return 0
+
+
+def _explanation_fields(explanation: dict) -> dict:
+    bands = explanation["bands"]
+    return {"volume_ratio": round(explanation["volume_ratio"], 3),
+            "bands_matched": len(bands.pairs), "bands_unmatched": len(bands.unmatched_a) + len(bands.unmatched_b)}
+
+
+def band_lines(bands, limit: int) -> list[str]:
+    """Matched and unmatched main bands, in order of position (cm-1), for printing."""
+    lines = [(a.position_cm1, f"{a.position_cm1:7.0f} ~ {b.position_cm1:7.0f}  matched") for a, b in bands.pairs]
+    lines += [(a.position_cm1, f"{a.position_cm1:7.0f} ~       -  only in the first") for a in bands.unmatched_a]
+    lines += [(b.position_cm1, f"      - ~ {b.position_cm1:7.0f}  only in the second") for b in bands.unmatched_b]
+    return [text for _, text in sorted(lines)][:limit]
+
+
+def bands_dict(bands) -> dict:
+    return {"tolerance_cm1": bands.tolerance_cm1, "score": bands.score,
+            "matched": [[a.position_cm1, b.position_cm1] for a, b in bands.pairs],
+            "only_a": [a.position_cm1 for a in bands.unmatched_a],
+            "only_b": [b.position_cm1 for b in bands.unmatched_b]}
+
+
+def cmd_compare(args) -> int:
+    catalogue = open_catalogue(args)
+    result = service.compare(catalogue, args.a, args.b, weight=args.weight, vibration_engine=args.engine)
+    bands = result.explanation["bands"]
+    if args.format == "json":
+        print(json.dumps({
+            "a": {"id": result.a.id, "name": result.a.name}, "b": {"id": result.b.id, "name": result.b.name},
+            "scores": result.scores, "blend_weight": result.weight,
+            "overlay_tversky": result.explanation["overlay_tversky"],
+            "volume_ratio": result.explanation["volume_ratio"],
+            "bands": bands_dict(bands)}, indent=2, default=float))
+        return 0
+    print(f"#{result.a.id} {result.a.name}  vs  #{result.b.id} {result.b.name}")
+    for metric in SCORE_COLUMNS:
+        if metric in result.scores:
+            print(f"  {metric:<10} {result.scores[metric]:.4f}")
+    print(f"  (blend weight {result.weight}; overlay Tversky {result.explanation['overlay_tversky']:.4f}, "
+          f"volume ratio {result.explanation['volume_ratio']:.3f})")
+    print(f"  main bands matched within {bands.tolerance_cm1:g} cm-1: {len(bands.pairs)} "
+          f"(band score {bands.score:.3f}); only in {result.a.name}: {len(bands.unmatched_a)}; "
+          f"only in {result.b.name}: {len(bands.unmatched_b)}")
+    for line in band_lines(bands, args.bands):
+        print(f"    {line}")
+    print(f"caution: {service.CAUTION}")
+    return 0
+
+
+def cmd_disagreements(args) -> int:
+    catalogue = open_catalogue(args)
+    observation = None if args.observed == "none" else args.observed
+    rows, label = service.find_disagreement_rows(
+        catalogue, k=args.neighbors, min_shape=args.min_shape, max_vibration=args.max_vibration,
+        min_vibration=args.min_vibration, max_shape=args.max_shape, direction=args.direction,
+        observation=observation, include_retired=args.include_retired, vibration_engine=args.engine)
+    table = []
+    for r in rows[: args.limit]:
+        p = r.pair
+        table.append({"direction": p.direction, "basis": r.basis, "a": f"#{r.a.id} {r.a.name}", "b": f"#{r.b.id} {r.b.name}",
+                      "gap": round(p.score, 4), "shape": round(p.shape, 4), "vibration": round(p.vibration, 4),
+                      "structure": None if p.structure is None else round(p.structure, 4),
+                      "observed": None if p.observed is None else round(p.observed, 3),
+                      "sides_with": p.sides_with, "flags": "; ".join(r.flags)})
+    emit(table, ["direction", "basis", "a", "b", "gap", "shape", "vibration", "structure", "observed", "sides_with",
+                 "flags"], args.format)
+    if args.format == "table":
+        print(f"{len(rows)} pair(s) found, {len(table)} shown"
+              + (f"; observed similarity: {label}" if label else ""))
+    return 0
+
+
+def cmd_flag(args) -> int:
+    catalogue = open_catalogue(args)
+    with catalogue.transaction() as session:
+        a = curation.find_material(session, args.a)
+        b = curation.find_material(session, args.b)
+        flag = observations.flag_pair(session, a, b, kind=args.kind, note=args.note)
+        print(f"flagged #{a.id} {a.preferred_name} and #{b.id} {b.preferred_name}: {flag.kind}")
+    return 0
+
+
+def cmd_flags(args) -> int:
+    catalogue = open_catalogue(args)
+    with catalogue.reading() as session:
+        rows = [{"a": f"#{f.material_a.id} {f.material_a.preferred_name}",
+                 "b": f"#{f.material_b.id} {f.material_b.preferred_name}", "kind": f.kind, "note": f.note,
+                 "by": f.created_by, "at": f"{f.created_at:%Y-%m-%d %H:%M}"}
+                for f in observations.list_flags(session)]
+    emit(rows, ["a", "b", "kind", "note", "by", "at"], args.format)
+    return 0
+
+
+def cmd_observations(args) -> int:
+    catalogue = open_catalogue(args)
+    path = Path(args.file)
+    if not path.is_file():
+        raise ImportFileError(f"{path} does not exist or is not a file")
+    with catalogue.sessions() as session:
+        with session.begin() as outer:
+            report = observations.import_observations(
+                session, path.read_bytes(), path.name, set_name=args.set, kind=args.kind, source=args.source,
+                unit=args.unit, description=args.description, replace=args.replace)
+            if not report.stored:
+                outer.rollback()
+    for problem in report.problems:
+        print(problem)
+    print(report.summary())
+    return 0 if report.stored else 1
+
+
+def cmd_scorecard(args) -> int:
+    catalogue = open_catalogue(args)
+    scores, label, notes = service.run_scorecard(
+        catalogue, observation=args.observed, k=args.k, permutations=args.permutations,
+        resamples=args.resamples, weight=args.weight, vibration_engine=args.engine)
+    rows = [{"metric": s.metric, "materials": s.materials, "pairs": s.pairs, "spearman": round(s.spearman, 4),
+             "mantel_p": round(s.mantel_p, 4), "ci_low": round(s.ci_low, 4), "ci_high": round(s.ci_high, 4),
+             f"precision_at_{s.k}": None if s.precision_at_k is None else round(s.precision_at_k, 4)}
+            for s in scores]
+    if args.format == "table":
+        print(f"observed similarity: {label}; Spearman over pairs, one-sided Mantel p "
+              f"({args.permutations} permutations), {int(scores[0].confidence * 100)} % bootstrap interval")
+    emit(rows, list(rows[0]), args.format)
+    for note in notes:
+        print(f"note: {note}", file=sys.stderr)
+    return 0
+
+
+def _add_common(p, *, weight=True, fmt=True) -> None:
+    p.add_argument("--engine", choices=("mmff", "gfn2"), default="mmff", help="vibration engine of the records")
+    if weight:
+        p.add_argument("--weight", type=float, default=0.5, help="shape weight w of the blend (0-1, default 0.5)")
+    if fmt:
+        p.add_argument("--format", choices=FORMATS, default="table")
+
+
+def register(commands) -> None:
+    p = commands.add_parser("search", help="rank substitutes for a material or a new structure")
+    p.add_argument("query", help="material (name, id, CAS RN, InChIKey) or a structure (SMILES, InChI)")
+    p.add_argument("--metric", choices=METRICS, default="blend")
+    p.add_argument("-k", type=int, default=10, help="number of candidates (default 10)")
+    p.add_argument("--mw", type=float, nargs=2, metavar=("LOW", "HIGH"), help="molecular weight range, g/mol")
+    p.add_argument("--logp", type=float, nargs=2, metavar=("LOW", "HIGH"), help="computed logP range")
+    p.add_argument("--with-odor", nargs="+", metavar="TERM", help="candidates must have these descriptors")
+    p.add_argument("--without-odor", nargs="+", metavar="TERM", help="candidates must not have these")
+    p.add_argument("--include-retired", action="store_true")
+    p.add_argument("--include-restricted", action="store_true")
+    p.add_argument("--rerank-depth", type=int, default=service.DEFAULT_RERANK_DEPTH,
+                   help="shape metric: re-rank this many top candidates by Gaussian overlay (0: off)")
+    p.add_argument("--explain", action="store_true", help="add volume ratio and band matching per candidate")
+    _add_common(p)
+    p.set_defaults(handler=cmd_search)
+
+    p = commands.add_parser("compare", help="every metric for a pair, with overlay and band matching")
+    p.add_argument("a")
+    p.add_argument("b")
+    p.add_argument("--bands", type=int, default=12, help="band lines to print (default 12)")
+    _add_common(p, fmt=False)
+    p.add_argument("--format", choices=("table", "json"), default="table")
+    p.set_defaults(handler=cmd_compare)
+
+    p = commands.add_parser("disagreements", help="pairs where shape and vibration disagree")
+    p.add_argument("--direction", choices=("both",) + DIRECTIONS, default="both")
+    p.add_argument("--min-shape", type=float, default=0.9)
+    p.add_argument("--max-vibration", type=float, default=0.6)
+    p.add_argument("--min-vibration", type=float, default=0.9)
+    p.add_argument("--max-shape", type=float, default=0.6)
+    p.add_argument("--neighbors", type=int, default=20, help="neighbor-list length per material (default 20)")
+    p.add_argument("--observed", default="descriptors",
+                   help="observed similarity: 'descriptors' (default), a data set name, or 'none'")
+    p.add_argument("--include-retired", action="store_true")
+    p.add_argument("--limit", type=int, default=50)
+    _add_common(p, weight=False)
+    p.set_defaults(handler=cmd_disagreements)
+
+    p = commands.add_parser("flag", help="flag a pair of materials")
+    p.add_argument("a")
+    p.add_argument("b")
+    p.add_argument("--kind", required=True, choices=observations.FLAG_KINDS)
+    p.add_argument("--note")
+    p.set_defaults(handler=cmd_flag)
+
+    p = commands.add_parser("flags", help="list pair flags")
+    p.add_argument("--format", choices=FORMATS, default="table")
+    p.set_defaults(handler=cmd_flags)
+
+    p = commands.add_parser("observations", help="import measured data (panel profiles, receptor responses)")
+    p.add_argument("action", choices=("import",))
+    p.add_argument("file")
+    p.add_argument("--set", required=True, help="name of the data set")
+    p.add_argument("--kind", choices=observations.OBSERVATION_KINDS, default="panel profile")
+    p.add_argument("--source", required=True, help="provenance, e.g. 'measured: in-house panel, 2026-05'")
+    p.add_argument("--unit")
+    p.add_argument("--description")
+    p.add_argument("--replace", action="store_true", help="replace a data set of the same name")
+    p.set_defaults(handler=cmd_observations)
+
+    p = commands.add_parser("scorecard", help="how well each metric predicts observed similarity")
+    p.add_argument("--observed", default="descriptors", help="'descriptors' (default) or a data set name")
+    p.add_argument("-k", type=int, default=5, help="k of precision at k (default 5)")
+    p.add_argument("--permutations", type=int, default=999)
+    p.add_argument("--resamples", type=int, default=1000)
+    _add_common(p)
+    p.set_defaults(handler=cmd_scorecard)

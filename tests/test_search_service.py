@@ -1,0 +1,187 @@
+"""Search over a real small catalogue: records computed with the real engines, stored, indexed, queried."""
+
+import numpy as np
+import pytest
+
+from conftest import draft
+from library import computations
+from library.catalogue import curation, jobs, observations
+from library.search import service
+
+# Real aroma materials (structures from memory); the test pairs that the two hypotheses
+# treat differently: a mirror-image pair and an isotopologue pair.
+MATERIALS = {
+    "Citral": "CC(C)=CCCC(C)=CC=O",
+    "Geranyl nitrile": "CC(C)=CCC/C(C)=C/C#N",
+    "Citronellal": "CC(C)=CCCC(C)CC=O",
+    "(R)-carvone": "CC1=CC[C@@H](CC1=O)C(C)=C",
+    "(S)-carvone": "CC1=CC[C@H](CC1=O)C(C)=C",
+    "Benzaldehyde": "O=Cc1ccccc1",
+    "Benzaldehyde-d6": "[2H]C(=O)c1c([2H])c([2H])c([2H])c([2H])c1[2H]",
+    "Vanillin": "COc1cc(C=O)ccc1O",
+    "Ethyl vanillin": "CCOc1cc(C=O)ccc1O",
+    "Anethole": "C/C=C/c1ccc(OC)cc1",
+}
+ODORS = {"Citral": "citrus", "Geranyl nitrile": "citrus", "Citronellal": "citrus|green",
+         "(R)-carvone": "minty", "(S)-carvone": "spicy|herbal", "Benzaldehyde": "fruity|sweet",
+         "Benzaldehyde-d6": "fruity", "Vanillin": "vanilla|sweet", "Ethyl vanillin": "vanilla|sweet",
+         "Anethole": "spicy|sweet"}
+
+
+@pytest.fixture(scope="module")
+def searchable(tmp_path_factory):
+    """A SQLite catalogue with computed shape and vibration (MMFF94) records for every material."""
+    from library.catalogue.database import initialize
+    from conftest import TEST_VOCABULARY
+
+    folder = tmp_path_factory.mktemp("search")
+    catalogue = initialize(f"sqlite:///{folder / 'search.sqlite'}")
+    with catalogue.transaction() as session:
+        for term, family in TEST_VOCABULARY.items():
+            curation.add_descriptor(session, term, family=family)
+        for name, smiles in MATERIALS.items():
+            curation.add_material(session, draft(smiles, name, odors=ODORS[name]))
+    plan = computations.Plan()
+    stamps = computations.stamps(plan)
+    report = jobs.run(catalogue, stamps, computations.worker(plan),
+                      jobs.select_materials(catalogue, stamps), processes=2)
+    assert report.done == len(MATERIALS) and not report.failures, report.failures
+    yield catalogue, folder
+    catalogue.dispose()
+
+
+@pytest.fixture
+def index(searchable):
+    catalogue, folder = searchable
+    return service.load_index(catalogue, cache_dir=folder / "cache")
+
+
+def test_every_material_is_indexed_and_the_cache_is_reused_until_a_change(searchable):
+    catalogue, folder = searchable
+    first = service.load_index(catalogue, cache_dir=folder / "cache-a")
+    assert not first.from_cache and len(first.materials) == len(MATERIALS) and not first.unindexed
+    again = service.load_index(catalogue, cache_dir=folder / "cache-a")
+    assert again.from_cache and again.revision == first.revision
+    with catalogue.transaction() as session:
+        curation.set_restricted(session, curation.find_material(session, "Anethole"), True)
+    changed = service.load_index(catalogue, cache_dir=folder / "cache-a")
+    assert not changed.from_cache and changed.revision != first.revision
+    with catalogue.transaction() as session:
+        curation.set_restricted(session, curation.find_material(session, "Anethole"), False)
+
+
+def test_substitutes_rank_by_the_chosen_metric_and_report_every_metric(searchable, index):
+    catalogue, _ = searchable
+    outcome = service.find_substitutes(catalogue, "Citral", metric="blend", weight=0.5, k=5, cat_index=index)
+    names = [c.material.name for c in outcome.candidates]
+    assert "Citral" not in names and len(names) == 5
+    blends = [c.scores["blend"] for c in outcome.candidates]
+    assert blends == sorted(blends, reverse=True)
+    for c in outcome.candidates:
+        assert set(c.scores) >= {"shape", "vibration", "blend", "structure"}
+        assert c.scores["blend"] == pytest.approx(0.5 * c.scores["shape"] + 0.5 * c.scores["vibration"], abs=1e-5)
+        assert all(0.0 <= v <= 1.0 for v in c.scores.values())
+    # the nitrile analogue is the perfumer's usual stability substitute (common practice, no source)
+    assert "Geranyl nitrile" in names[:3]
+    assert "IFRA" in outcome.caution and "safety data sheet" in outcome.caution
+
+
+def test_shape_search_is_reranked_by_overlay_and_filters_apply(searchable, index):
+    catalogue, _ = searchable
+    outcome = service.find_substitutes(catalogue, "(R)-carvone", metric="shape", k=3, cat_index=index)
+    assert outcome.candidates[0].material.name == "(S)-carvone"
+    overlays = [c.scores["overlay"] for c in outcome.candidates]
+    assert overlays == sorted(overlays, reverse=True)
+    filtered = service.find_substitutes(
+        catalogue, "(R)-carvone", metric="shape", k=5, cat_index=index,
+        filters=service.build_filter(must_not_have=["herbal"], mw_range=(100, 160)))
+    for c in filtered.candidates:
+        assert "herbal" not in c.material.odors and 100 <= c.material.molecular_weight <= 160
+
+
+def test_new_structure_is_computed_on_the_fly_and_not_stored(searchable, index):
+    catalogue, _ = searchable
+    revision = catalogue.revision()
+    outcome = service.find_substitutes(catalogue, "CC(C)=CCCC(C)=CC#N", k=3, cat_index=index)  # citral nitrile mix
+    assert outcome.query.material_id is None and any("not stored" in n for n in outcome.notes)
+    assert outcome.candidates[0].material.name in ("Geranyl nitrile", "Citral")
+    with catalogue.reading() as session:
+        with pytest.raises(curation.CurationError):
+            curation.find_material(session, "CC(C)=CCCC(C)=CC#N")
+    assert catalogue.revision() == revision
+
+
+def test_compare_explains_the_mirror_image_pair(searchable, index):
+    catalogue, _ = searchable
+    result = service.compare(catalogue, "(R)-carvone", "(S)-carvone", cat_index=index)
+    # enantiomers have identical harmonic frequencies (textbook: same potential energy surface)
+    assert result.scores["vibration"] > 0.999
+    assert result.scores["structure"] == 1.0  # Morgan bits ignore stereo unless asked
+    assert result.scores["shape"] < 0.995 and result.scores["overlay"] < 0.99
+    bands = result.explanation["bands"]
+    assert bands.score == 1.0 and not bands.unmatched_a
+
+
+def test_disagreements_surface_the_isotopologue_and_mirror_image_pairs(searchable, index):
+    catalogue, _ = searchable
+    rows, label = service.find_disagreement_rows(catalogue, k=5, cat_index=index)
+    pairs = {frozenset((r.a.name, r.b.name)): r for r in rows}
+    isotopologue = pairs[frozenset(("Benzaldehyde", "Benzaldehyde-d6"))]
+    assert isotopologue.pair.direction == "shape-not-vibration"
+    assert isotopologue.pair.shape > 0.999 and isotopologue.pair.vibration < 0.9
+    mirror = pairs[frozenset(("(R)-carvone", "(S)-carvone"))]
+    assert mirror.pair.direction == "vibration-not-shape" and mirror.basis == "indistinguishable by vibration"
+    assert label == "odor descriptor Jaccard"
+    assert rows[0].basis.startswith("indistinguishable")
+
+
+def test_flags_and_observations_feed_the_scorecard(searchable, index, tmp_path):
+    catalogue, _ = searchable
+    with catalogue.transaction() as session:
+        a, b = (curation.find_material(session, n) for n in ("Benzaldehyde", "Benzaldehyde-d6"))
+        observations.flag_pair(session, b, a, kind="shape-alike smell-different", note="panel check")
+    rows, _ = service.find_disagreement_rows(catalogue, k=5, cat_index=index)
+    flagged = [r for r in rows if r.flags]
+    assert flagged and flagged[0].flags == ["shape-alike smell-different"]
+
+    # an invented panel data set (demo data): intensity 0-10 on four descriptors
+    profiles = {"Citral": (9, 1, 0, 2), "Geranyl nitrile": (8, 1, 0, 1), "Citronellal": (7, 3, 0, 1),
+                "(R)-carvone": (1, 8, 0, 2), "(S)-carvone": (1, 2, 0, 8), "Vanillin": (0, 0, 9, 3),
+                "Ethyl vanillin": (0, 0, 9, 4), "Benzaldehyde": (1, 0, 2, 6)}
+    lines = ["material,citrus,minty,vanilla,spicy"] + [f"{n},{','.join(map(str, v))}" for n, v in profiles.items()]
+    with catalogue.transaction() as session:
+        report = observations.import_observations(
+            session, "\n".join(lines).encode(), "panel.csv", set_name="demo panel", kind="panel profile",
+            source="demo")
+    assert report.stored and report.values == 32
+    scores, label, _ = service.run_scorecard(catalogue, observation="demo panel", permutations=99,
+                                             resamples=99, k=2, cat_index=index)
+    assert [s.metric for s in scores] == ["shape", "vibration", "blend", "structure"]
+    for s in scores:
+        assert -1 <= s.spearman <= 1 and 0 < s.mantel_p <= 1 and s.ci_low <= s.ci_high and s.materials == 8
+    assert "profile correlation" in label
+
+
+def test_bad_observation_files_store_nothing(searchable):
+    catalogue, _ = searchable
+    for body, problem in [(b"material,citrus\nNo such thing,3\n", "no material matches"),
+                          (b"material,citrus\nCitral,lots\n", "not a number"),
+                          (b"material,variable,value\nCitral,citrus,1\nCitral,citrus,2\n", "given twice")]:
+        with catalogue.sessions() as session:
+            with session.begin() as outer:
+                report = observations.import_observations(session, body, "bad.csv", set_name=f"bad {problem}",
+                                                          kind="panel profile", source="demo")
+                assert not report.stored and problem in report.problems[0]
+                outer.rollback()
+    with catalogue.reading() as session:
+        with pytest.raises(curation.CurationError, match="no data set"):
+            observations.observation_profiles(session, "bad not a number")
+
+
+def test_metric_matrices_agree_with_pair_scores(index):
+    rows = np.arange(len(index.materials))
+    matrices = service.metric_matrices(index.index, rows)
+    pair = index.index.pair_scores([0, 1, 2], [3, 4, 5])
+    for metric in ("shape", "vibration", "structure"):
+        assert np.allclose([matrices[metric][0, 3], matrices[metric][1, 4], matrices[metric][2, 5]],
+                           pair[metric], atol=1e-5)
