@@ -17,12 +17,14 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.constants
 from rdkit import Chem, rdBase
-from rdkit.Geometry import Point3D
 from rdkit.Chem import rdDistGeom, rdForceFieldHelpers, rdMolAlign, rdMolDescriptors
 from rdkit.Chem.EnumerateStereoisomers import (
     EnumerateStereoisomers,
     StereoEnumerationOptions,
 )
+from rdkit.Geometry import Point3D
+
+from library.errors import OlibraError
 
 __all__ = [
     "Conformer",
@@ -55,7 +57,7 @@ _MMFF_MAX_ITERATIONS = 500
 _QUICK_EMBED_TRIES = 5
 
 
-class ConformerError(ValueError):
+class ConformerError(OlibraError, ValueError):
     """The structure cannot be turned into a conformer ensemble."""
 
 

@@ -26,6 +26,7 @@ from rdkit import Chem, rdBase
 from rdkit.Chem import rdMolDescriptors, rdShapeAlign
 
 from library.conformers import ConformerEnsemble, ensemble, heavy_atom_mol
+from library.errors import OlibraError
 
 __all__ = [
     "ENGINE_NAME",
@@ -58,7 +59,7 @@ _SCALARS = (
 _COLLINEAR_A2 = 1e-6
 
 
-class ShapeError(ValueError):
+class ShapeError(OlibraError, ValueError):
     """Input that the shape engine cannot describe or compare."""
 
 

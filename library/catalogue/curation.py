@@ -25,7 +25,7 @@ from library.catalogue.models import (
     Synonym,
 )
 from library.errors import OlibraError
-from library.structures import StandardStructure, StructureError, check_cas, standardize
+from library.structures import StandardStructure, check_cas, standardize
 
 SEED_DIR = Path(__file__).resolve().parents[2] / "seed_catalog"
 VOCABULARY_FILE = SEED_DIR / "odor_vocabulary.csv"

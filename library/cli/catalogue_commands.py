@@ -120,11 +120,11 @@ def summary_lines(summary: dict) -> list[str]:
         if isinstance(value, float):
             text = f"{value:.4g}"
         elif isinstance(value, list):
-            shown = [f"{v:.0f}" if isinstance(v, float) else str(v) for v in value[:12]]
+            shown = [f"{v:.4g}" if isinstance(v, float) else str(v) for v in value[:12]]
             text = ", ".join(shown) + (" ..." if len(value) > 12 else "")
         else:
             text = str(value)
-        lines.append(f"{key.replace('_', ' '):<22}{text}")
+        lines.append(f"{key.replace('_', ' '):<30}{text}")
     return lines
 
 

@@ -60,8 +60,20 @@ def cmd_demo(args) -> int:
     return 0
 
 
-# Later capabilities (search, web) append functions (catalogue, args) -> None.
-DEMO_STEPS: list = []
+def first_search(catalogue, args) -> None:
+    """Show what olibra is for: substitutes for a material a fictional brief must replace."""
+    from library.cli.search_commands import print_substitutes
+    from library.search import service
+
+    print()
+    outcome = service.find_substitutes(catalogue, DEMO_QUERY, metric="blend", weight=0.5, k=8)
+    print_substitutes(outcome)
+    print("\nnext: olibra --db " + catalogue.url + " compare Citral 'Geranyl nitrile'   "
+          "(see seed_catalog/DEMO.md for the whole scenario)")
+
+
+# Steps after the catalogue is ready; the web interface adds its own.
+DEMO_STEPS: list = [first_search]
 
 
 def register(commands) -> None:

@@ -10,6 +10,7 @@ from library.catalogue import curation, observations
 from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
+from library.errors import OlibraError
 from library.search import service
 from library.search.disagreements import DIRECTIONS
 from library.search.index import METRICS
@@ -30,36 +31,46 @@ def cmd_search(args) -> int:
     outcome = service.find_substitutes(
         catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
         rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine)
+    print_substitutes(outcome, fmt=args.format, explain=args.explain, rerank_depth=args.rerank_depth)
+    return 0
+
+
+def print_substitutes(outcome: service.SearchOutcome, *, fmt: str = "table", explain: bool = False,
+                      rerank_depth: int = service.DEFAULT_RERANK_DEPTH) -> None:
+    """Candidates with every metric's score and rank (table: 'score (rank)')."""
     rows = []
     for c in outcome.candidates:
         row = {"rank": c.rank, "id": c.material.id, "name": c.material.name,
                "odor": ", ".join(c.material.odors), "smiles": c.material.smiles}
         for metric in SCORE_COLUMNS:
             if metric in c.scores:
-                row[metric] = round(c.scores[metric], 4)
-                row[f"{metric}_rank"] = c.ranks.get(metric)
+                if fmt == "table":
+                    row[metric] = f"{c.scores[metric]:.3f} ({c.ranks.get(metric, '-')})"
+                else:
+                    row[metric] = round(c.scores[metric], 4)
+                    row[f"{metric}_rank"] = c.ranks.get(metric)
         if c.explanation:
             row.update(_explanation_fields(c.explanation))
         rows.append(row)
-    columns = ["rank", "id", "name"] + [m for m in SCORE_COLUMNS if any(m in r for r in rows)]
-    if args.format != "table":
-        columns += [f"{m}_rank" for m in SCORE_COLUMNS if any(m in r for r in rows)] + ["odor", "smiles"]
+    present = [m for m in SCORE_COLUMNS if any(m in r for r in rows)]
+    columns = ["rank", "id", "name"] + present
+    if fmt != "table":
+        columns += [f"{m}_rank" for m in present] + ["odor", "smiles"]
     else:
         columns += ["odor"]
-    if args.explain:
+    if explain:
         columns += ["volume_ratio", "bands_matched", "bands_unmatched"]
-    if args.format == "table":
-        weight_text = f", shape weight {args.weight}" if args.metric == "blend" else ""
-        print(f"substitutes for {outcome.query.label} by {args.metric}{weight_text}:")
-    emit(rows, columns, args.format)
-    if args.format == "table":
-        if args.metric == "shape" and args.rerank_depth:
-            print(f"(top {args.rerank_depth} by moments re-ranked by Gaussian overlay)")
-        print("ranks in columns: each hit's rank under every metric; `olibra compare A B` explains a pair")
+    if fmt == "table":
+        weight_text = f", shape weight {outcome.weight}" if outcome.metric == "blend" else ""
+        print(f"substitutes for {outcome.query.label} by {outcome.metric}{weight_text}:")
+    emit(rows, columns, fmt)
+    if fmt == "table":
+        if outcome.metric == "shape" and rerank_depth:
+            print(f"(top {rerank_depth} by moments re-ranked by Gaussian overlay)")
+        print("each cell: similarity (0-1) and, in brackets, the candidate's rank under that metric")
         for note in outcome.notes:
             print(f"note: {note}")
         print(f"caution: {outcome.caution}")
-    return 0
 
 
 def _explanation_fields(explanation: dict) -> dict:
@@ -190,6 +201,25 @@ def cmd_scorecard(args) -> int:
     return 0
 
 
+def cmd_spectrum(args) -> int:
+    from library.vibration.plot import draw_spectrum
+
+    catalogue = open_catalogue(args)
+    name, spectrum = service.material_spectrum(catalogue, args.material, vibration_engine=args.engine)
+    other, labels = None, (name, "")
+    if args.against:
+        other_name, other = service.material_spectrum(catalogue, args.against, vibration_engine=args.engine)
+        labels = (name, other_name)
+    try:
+        path = draw_spectrum(spectrum, args.out, other=other, sigma_cm1=args.sigma, labels=labels,
+                             intensity_weighting="ir" if args.ir else "none",
+                             title=f"{name} ({args.engine}, sigma {args.sigma:g} cm-1)")
+    except OSError as exc:
+        raise OlibraError(f"cannot write {args.out}: {exc.strerror}") from None
+    print(f"wrote {path}")
+    return 0
+
+
 def _add_common(p, *, weight=True, fmt=True) -> None:
     p.add_argument("--engine", choices=("mmff", "gfn2"), default="mmff", help="vibration engine of the records")
     if weight:
@@ -236,6 +266,15 @@ def register(commands) -> None:
     p.add_argument("--limit", type=int, default=50)
     _add_common(p, weight=False)
     p.set_defaults(handler=cmd_disagreements)
+
+    p = commands.add_parser("spectrum", help="draw a material's vibrational spectrum (sticks and smoothed)")
+    p.add_argument("material")
+    p.add_argument("--out", required=True, help="file to write, .svg or .png")
+    p.add_argument("--against", metavar="MATERIAL", help="draw a second material mirrored below")
+    p.add_argument("--sigma", type=float, default=10.0, help="smoothing width, cm-1 (default 10)")
+    p.add_argument("--ir", action="store_true", help="weight by IR intensity (gfn2 records only)")
+    _add_common(p, weight=False, fmt=False)
+    p.set_defaults(handler=cmd_spectrum)
 
     p = commands.add_parser("flag", help="flag a pair of materials")
     p.add_argument("a")

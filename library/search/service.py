@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 import platformdirs
 from rdkit import Chem
-from rdkit.Chem import Crippen, Descriptors
+from rdkit.Chem import Crippen
 from sqlalchemy import select
 from sqlalchemy.orm import selectinload
 
@@ -556,3 +556,17 @@ def run_scorecard(catalogue: Catalogue, *, observation: str = "descriptors", k: 
     except ValueError as exc:
         raise SearchError(str(exc)) from None
     return scores, label, notes
+
+
+def material_spectrum(catalogue: Catalogue, key: str, *, vibration_engine: str = "mmff"):
+    """(material name, VibrationSpectrum) from the material's stored vibration record."""
+    stamp = _stamps(vibration_engine)["vibration"]
+    with catalogue.reading() as session:
+        material = curation.find_material(session, key)
+        loaded = records.load_records(session, "vibration", stamp.engine_name, material_ids=[material.id])
+        name = material.preferred_name
+    if material.id not in loaded:
+        raise SearchError(f"#{material.id} {name} has no {stamp.engine_name} vibration record; "
+                          f"run `olibra compute vibration {material.id} --engine {vibration_engine}`")
+    record = loaded[material.id]
+    return name, _vibration_spectrum(record.arrays, record.summary)

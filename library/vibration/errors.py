@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+from library.errors import OlibraError
 
-class VibrationInputError(ValueError):
+
+class VibrationInputError(OlibraError, ValueError):
     """The input (structure, array or option) cannot be used; the message says why and what to do."""
 
 

@@ -8,7 +8,6 @@ import matplotlib
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
 
 from library.vibration.errors import VibrationInputError  # noqa: E402
 from library.vibration.spectrum import VibrationSpectrum, _modes_and_amplitudes, _smoothed, grid_cm1  # noqa: E402
