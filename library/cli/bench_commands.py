@@ -23,7 +23,31 @@ def cmd_bench_shape(args) -> int:
     return 0
 
 
-BENCHES = {"shape": cmd_bench_shape}
+def cmd_bench_vibration(args) -> int:
+    from library.vibration import bench
+
+    materials = benchmark_materials()
+    _header("vibration", args.processes)
+    print(f"benchmark set: {len(materials)} seed materials with at most 25 heavy atoms")
+    bench.run([smiles for _, smiles in materials], processes=args.processes)
+    return 0
+
+
+def cmd_bench_search(args) -> int:
+    from library.cli.catalogue_commands import open_catalogue
+    from library.search import bench, service
+
+    _header("search", None)
+    sizes = tuple(args.sizes) if args.sizes else (10_000, 100_000, 1_000_000)
+    bench.run(sizes)
+    if args.skip_catalogue:
+        return 0
+    catalogue = open_catalogue(args)
+    service.overlay_recall_benchmark(catalogue, queries=args.queries)
+    return 0
+
+
+BENCHES = {"shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search}
 
 
 def cmd_bench(args) -> int:
@@ -34,4 +58,8 @@ def register(commands) -> None:
     p = commands.add_parser("bench", help="print performance figures (shape, vibration, search, web)")
     p.add_argument("what", choices=sorted(BENCHES))
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
+    p.add_argument("--sizes", type=int, nargs="+", help="search: synthetic catalogue sizes (default 10k 100k 1M)")
+    p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
+    p.add_argument("--skip-catalogue", action="store_true",
+                   help="search: skip the recall figure on the real catalogue (--db, with computed records)")
     p.set_defaults(handler=cmd_bench)
