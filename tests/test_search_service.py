@@ -185,3 +185,36 @@ def test_metric_matrices_agree_with_pair_scores(index):
     for metric in ("shape", "vibration", "structure"):
         assert np.allclose([matrices[metric][0, 3], matrices[metric][1, 4], matrices[metric][2, 5]],
                            pair[metric], atol=1e-5)
+
+
+def test_search_commands_end_to_end(searchable, capsys, monkeypatch, tmp_path):
+    import json
+
+    from library.cli import main
+
+    catalogue, folder = searchable
+    monkeypatch.setenv("OLIBRA_CACHE", str(tmp_path / "cache"))
+    url = catalogue.url
+
+    def run(*args):
+        code = main(["--db", url, *args])
+        out = capsys.readouterr()
+        return code, out.out, out.err
+
+    code, out, _ = run("search", "Citral", "-k", "3", "--format", "json")
+    hits = json.loads(out)
+    assert code == 0 and len(hits) == 3 and {"shape_rank", "vibration_rank", "blend", "structure"} <= set(hits[0])
+    code, out, _ = run("search", "Vanillin", "--metric", "vibration", "-k", "2")
+    assert code == 0 and "caution:" in out and "IFRA" in out and "Ethyl vanillin" in out
+    code, out, _ = run("compare", "Benzaldehyde", "Benzaldehyde-d6", "--format", "json")
+    result = json.loads(out)
+    assert result["scores"]["shape"] > 0.999 and result["scores"]["vibration"] < 0.9
+    code, out, _ = run("disagreements", "--format", "csv", "--neighbors", "5")
+    assert code == 0 and "Benzaldehyde-d6" in out and "indistinguishable by shape" in out
+    code, _, err = run("flag", "Citral", "Citral", "--kind", "other")
+    assert code == 2 and "two different materials" in err
+    target = tmp_path / "spectrum.svg"
+    code, out, _ = run("spectrum", "Benzaldehyde", "--against", "Benzaldehyde-d6", "--out", str(target))
+    assert code == 0 and target.read_text().lstrip().startswith(("<?xml", "<svg"))
+    code, _, err = run("search", "no such material and no SMILES (", "-k", "2")
+    assert code == 2 and "no material matches" in err and "Traceback" not in err
