@@ -68,8 +68,9 @@ def first_search(catalogue, args) -> None:
     print()
     outcome = service.find_substitutes(catalogue, DEMO_QUERY, metric="blend", weight=0.5, k=8)
     print_substitutes(outcome)
-    print("\nnext: olibra --db " + catalogue.url + " compare Citral 'Geranyl nitrile'   "
-          "(see seed_catalog/DEMO.md for the whole scenario)")
+    print(f"\nnext: point olibra at this catalogue and follow seed_catalog/DEMO.md, e.g.\n"
+          f"  export OLIBRA_DB={catalogue.url}\n"
+          f"  olibra compare Citral 'Geranyl nitrile'")
 
 
 # Steps after the catalogue is ready; the web interface adds its own.
