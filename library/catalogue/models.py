@@ -267,3 +267,41 @@ class CatalogueState(Base):
 
     id: Mapped[int] = mapped_column(primary_key=True)
     revision: Mapped[int] = mapped_column(Integer, default=0)
+
+
+USER_ROLES = ("reader", "curator")
+JOB_STATES = ("queued", "running", "finished", "failed", "interrupted")
+
+
+class User(Base):
+    """A person who signs in to the web interface: readers see everything, curators also write."""
+
+    __tablename__ = "user_account"
+    __table_args__ = (CheckConstraint(_one_of("role", USER_ROLES), name="role"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    username: Mapped[str] = mapped_column(String(60), unique=True)
+    password_hash: Mapped[str] = mapped_column(String(255))
+    role: Mapped[str] = mapped_column(String(10), default="reader")
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
+
+
+class BackgroundJob(Base):
+    """Long work started from the web interface (a recompute), with its progress persisted."""
+
+    __tablename__ = "background_job"
+    __table_args__ = (CheckConstraint(_one_of("state", JOB_STATES), name="state"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    kind: Mapped[str] = mapped_column(String(40))
+    description: Mapped[str] = mapped_column(Text, default="")
+    parameters_json: Mapped[str] = mapped_column(Text, default="{}")
+    state: Mapped[str] = mapped_column(String(12), default="queued", index=True)
+    total: Mapped[int] = mapped_column(Integer, default=0)
+    done: Mapped[int] = mapped_column(Integer, default=0)
+    failed: Mapped[int] = mapped_column(Integer, default=0)
+    message: Mapped[str | None] = mapped_column(Text)
+    created_by: Mapped[str] = mapped_column(String(100))
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
+    started_at: Mapped[dt.datetime | None] = mapped_column(DateTime(timezone=True))
+    finished_at: Mapped[dt.datetime | None] = mapped_column(DateTime(timezone=True))

@@ -47,7 +47,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 # One module per area; each has register(commands) adding its subcommands.
-COMMAND_MODULES = ["catalogue_commands", "compute_commands", "search_commands", "demo_commands", "bench_commands"]
+COMMAND_MODULES = ["catalogue_commands", "compute_commands", "search_commands", "web_commands", "demo_commands", "bench_commands"]
 
 
 def main(argv: list[str] | None = None) -> int:

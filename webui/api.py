@@ -1,0 +1,165 @@
+"""The JSON API under /api: the same core calls as the pages, answers as JSON.
+
+Sign in with POST /api/session (JSON user name and password); send the CSRF
+token from GET /api/session in an X-CSRF-Token header with every POST, PUT,
+PATCH or DELETE. Errors are {"error": {"status": N, "message": "..."}}.
+"""
+
+from __future__ import annotations
+
+from flask import Blueprint, abort, current_app, jsonify, request
+from flask_login import current_user, login_user, logout_user
+from flask_wtf.csrf import generate_csrf
+from sqlalchemy import select
+from sqlalchemy.orm import selectinload
+
+from library.catalogue import accounts, curation
+from library.catalogue.models import BackgroundJob, Material, MaterialOdor
+from library.errors import OlibraError
+from webui import db_session, queries, web_state, write_transaction
+from webui.auth import SignedInUser
+from webui.curation import draft_from, run_import
+from webui.jobs import record_counts, start
+
+blueprint = Blueprint("api", __name__, url_prefix="/api")
+
+MATERIAL_FIELDS = {"structure", "name", "synonyms", "cas", "family", "odors", "notes", "source"}
+
+
+def json_body() -> dict:
+    data = request.get_json(silent=True)
+    if not isinstance(data, dict):
+        abort(400, description="send a JSON object in the request body with Content-Type: application/json")
+    return data
+
+
+def _session_state():
+    user = current_user if current_user.is_authenticated else None
+    return {"signed_in": user is not None, "username": user.username if user else None,
+            "role": user.role if user else None, "csrf_token": generate_csrf()}
+
+
+@blueprint.get("/session")
+def session_state():
+    return jsonify(_session_state())
+
+
+@blueprint.post("/session")
+def sign_in():
+    data = json_body()
+    user = accounts.authenticate(db_session(), str(data.get("username") or ""), str(data.get("password") or ""))
+    if user is None:
+        return jsonify(error={"status": 401, "message": "the user name or password is not right"}), 401
+    login_user(SignedInUser.of(user))
+    return jsonify(_session_state())
+
+
+@blueprint.delete("/session")
+def sign_out():
+    logout_user()
+    return jsonify(signed_in=False)
+
+
+@blueprint.get("/materials")
+def materials():
+    query, page_number, include_retired = queries.parse_page_arguments(request.args)
+    per_page_text = request.args.get("per_page", str(current_app.config["OLIBRA_PAGE_SIZE"]))
+    if not per_page_text.isdigit() or not 1 <= int(per_page_text) <= queries.MAX_PAGE_SIZE:
+        raise OlibraError(f"per_page {per_page_text[:20]!r} must be a whole number from 1 to {queries.MAX_PAGE_SIZE}")
+    page = queries.search_materials(db_session(), query, page=page_number, per_page=int(per_page_text),
+                                    include_retired=include_retired)
+    return jsonify(materials=[queries.material_json(m) for m in page.items], total=page.total,
+                   page=page.page, per_page=page.per_page, pages=page.pages)
+
+
+@blueprint.get("/materials/<int:material_id>")
+def material(material_id: int):
+    session = db_session()
+    found = session.get(Material, material_id, options=(
+        selectinload(Material.synonyms), selectinload(Material.provenance),
+        selectinload(Material.odors).selectinload(MaterialOdor.descriptor)))
+    if found is None:
+        abort(404, description=f"there is no material #{material_id}")
+    data = queries.material_json(found, detail=True)
+    data["computed_records"] = [
+        {"kind": r.kind, "engine": r.engine_name, "engine_version": r.engine_version, "state": r.state,
+         "computed_at": r.computed_at.isoformat() if r.computed_at else None, "summary": r.summary}
+        for r in queries.record_views(session, found)]
+    return jsonify(data)
+
+
+@blueprint.post("/materials")
+def add_material():
+    data = json_body()
+    unknown = sorted(set(data) - MATERIAL_FIELDS)
+    if unknown:
+        raise OlibraError(f"unknown field(s) {', '.join(unknown)}; allowed: {', '.join(sorted(MATERIAL_FIELDS))}")
+    for key in ("structure", "name"):
+        if not isinstance(data.get(key), str) or not data[key].strip():
+            raise OlibraError(f"'{key}' is required (a non-empty string)")
+    with write_transaction() as session:
+        outcome = curation.add_material(session, draft_from(data), actor=current_user.username)
+        body = queries.material_json(outcome.material, detail=True)
+    if not outcome.added:
+        return jsonify(error={"status": 409, "message": outcome.message}, existing=body), 409
+    return jsonify(body), 201
+
+
+@blueprint.post("/import")
+def import_file():
+    upload = request.files.get("file")
+    if upload is None:
+        raise OlibraError("send the file as multipart/form-data in a field named 'file'")
+    report = run_import(upload.filename or "", upload.read(),
+                        keep_good=request.form.get("keep_good", "") in ("1", "true", "yes", "on"),
+                        structure_source=request.form.get("structure_source", "").strip(),
+                        actor=current_user.username)
+    body = {"committed": report.committed, "summary": report.summary(),
+            "added": report.count("added"), "present": report.count("present"),
+            "rejected": report.count("rejected"),
+            "rows": [{"row": r.row, "name": r.name, "status": r.status, "message": r.message,
+                      "material_id": r.material_id} for r in report.rows]}
+    return jsonify(body), 200 if report.committed else 422
+
+
+@blueprint.get("/vocabulary")
+def vocabulary():
+    return jsonify(terms=[{"term": d.term, "family": d.family, "description": d.description, "materials": n}
+                          for d, n in queries.vocabulary_with_counts(db_session())])
+
+
+@blueprint.post("/vocabulary")
+def add_term():
+    data = json_body()
+    term = data.get("term")
+    if not isinstance(term, str) or not term.strip():
+        raise OlibraError("'term' is required (a non-empty string)")
+    with write_transaction() as session:
+        existed = term.strip().lower() in curation.vocabulary(session)
+        descriptor = curation.add_descriptor(session, term, family=data.get("family"),
+                                             description=data.get("description"), actor=current_user.username)
+        body = {"term": descriptor.term, "family": descriptor.family, "description": descriptor.description}
+    return jsonify(body), 200 if existed else 201
+
+
+@blueprint.get("/jobs")
+def jobs():
+    recent = db_session().scalars(select(BackgroundJob).order_by(BackgroundJob.id.desc()).limit(50)).all()
+    return jsonify(jobs=[queries.job_json(j) for j in recent], records=record_counts())
+
+
+@blueprint.post("/jobs/recompute")
+def recompute():
+    data = json_body()
+    job_id = start(str(data.get("kinds", "all")), str(data.get("engine", "mmff")))
+    with web_state().bookkeeping() as session:  # the request's own session predates the new row
+        return jsonify(queries.job_json(session.get(BackgroundJob, job_id))), 202
+
+
+@blueprint.get("/jobs/<int:job_id>")
+def job(job_id: int):
+    session = db_session()
+    found = session.get(BackgroundJob, job_id)
+    if found is None:
+        abort(404, description=f"there is no job #{job_id}")
+    return jsonify(queries.job_json(found))

@@ -1,0 +1,191 @@
+"""Curation pages: add a material, edit one, bulk import, the odor vocabulary (curators only write)."""
+
+from __future__ import annotations
+
+from functools import wraps
+from pathlib import Path
+
+from flask import Blueprint, abort, flash, redirect, render_template, request, url_for
+from flask_login import current_user
+from sqlalchemy.orm import selectinload
+from werkzeug.utils import secure_filename
+
+from library.catalogue import curation, transfer
+from library.catalogue.models import Material, MaterialOdor
+from library.errors import OlibraError
+from webui import db_session, queries, write_transaction
+from webui.edits import MaterialChanges, apply_changes, odor_text
+from webui.forms import EditMaterialForm, ImportForm, MaterialForm, VocabularyForm, split_lines
+
+blueprint = Blueprint("curation", __name__)
+
+IMPORT_SUFFIXES = (".csv", ".tsv", ".txt", ".sdf", ".sd")
+
+
+def curators_only(view):
+    """Forms only a curator can submit are not shown to readers either (writes are refused in auth)."""
+    @wraps(view)
+    def guarded(*args, **kwargs):
+        if not (current_user.is_authenticated and current_user.is_curator):
+            abort(403, description="Only curators can add, edit or import materials; "
+                                   "your account can read the catalogue.")
+        return view(*args, **kwargs)
+    return guarded
+
+
+def draft_from(values: dict):
+    """A checked material draft from the add form's or the API's values (raises OlibraError)."""
+    source = (values.get("source") or "").strip() or "from memory"
+    odors = values.get("odors") or ""
+    if isinstance(odors, list):
+        odors = "|".join(str(o) for o in odors)
+    odors = odors.replace(",", "|")
+    synonyms = values.get("synonyms") or []
+    if isinstance(synonyms, str):
+        synonyms = split_lines(synonyms)
+    cas = (values.get("cas") or "").strip()
+    return curation.draft_material(
+        values.get("structure") or "", name=values.get("name") or "", synonyms=synonyms, cas=cas,
+        family=values.get("family"), notes=values.get("notes"), odors=odors,
+        sources={"structure": source, "preferred_name": source, "cas_rn": source if cas else None,
+                 "odor": source if odors.strip() else None})
+
+
+@blueprint.route("/materials/new", methods=["GET", "POST"])
+@curators_only
+def add_material():
+    form = MaterialForm()
+    existing = None
+    status = 200
+    if request.method == "POST":
+        status = 400
+        if form.validate():
+            try:
+                with write_transaction() as session:
+                    draft = draft_from(form.data)
+                    outcome = curation.add_material(session, draft, actor=current_user.username)
+                if outcome.added:
+                    flash(f"Added #{outcome.material.id} {outcome.material.preferred_name}.", "success")
+                    return redirect(url_for("browse.material", material_id=outcome.material.id))
+                existing = outcome.material
+                status = 409
+            except OlibraError as exc:
+                form.form_errors.append(str(exc))
+    return render_template("curation/add.html", form=form, existing=existing), status
+
+
+def _material_for_edit(material_id: int) -> Material:
+    material = db_session().get(Material, material_id, options=(
+        selectinload(Material.synonyms), selectinload(Material.provenance),
+        selectinload(Material.odors).selectinload(MaterialOdor.descriptor)))
+    if material is None:
+        abort(404, description=f"There is no material #{material_id} to edit.")
+    return material
+
+
+def _stamp(material: Material) -> str:
+    return material.updated_at.isoformat() if material.updated_at else ""
+
+
+@blueprint.route("/materials/<int:material_id>/edit", methods=["GET", "POST"])
+@curators_only
+def edit_material(material_id: int):
+    material = _material_for_edit(material_id)
+    form = EditMaterialForm()
+    if request.method == "GET":
+        form.name.data = material.preferred_name
+        form.synonyms.data = "\n".join(s.name for s in material.synonyms)
+        form.cas.data = material.cas_rn or ""
+        form.family.data = material.olfactive_family or ""
+        form.odors.data = odor_text(material)
+        form.notes.data = material.notes or ""
+        form.status.data = material.status
+        form.restricted.data = material.restricted
+        form.loaded_at.data = _stamp(material)
+        return render_template("curation/edit.html", form=form, material=material)
+    if form.validate():
+        if form.loaded_at.data != _stamp(material):
+            form.form_errors.append("Someone changed this material after you opened the form. "
+                                    "Open the edit page again to see the current values; nothing was saved.")
+        else:
+            changes = MaterialChanges(
+                name=form.name.data, synonyms=split_lines(form.synonyms.data), cas=form.cas.data or "",
+                family=form.family.data or "", notes=form.notes.data or "", odors=form.odors.data or "",
+                odor_source=form.odor_source.data or "", source=form.source.data or "",
+                status=form.status.data, restricted=form.restricted.data)
+            try:
+                with write_transaction() as session:
+                    changed = apply_changes(session, material, changes, actor=current_user.username)
+            except OlibraError as exc:
+                form.form_errors.append(str(exc))
+            else:
+                flash(f"Saved: {', '.join(f.replace('_', ' ') for f in changed)}." if changed
+                      else "Nothing changed.", "success")
+                return redirect(url_for("browse.material", material_id=material_id))
+        material = _material_for_edit(material_id)  # the values as stored, after the rollback
+    return render_template("curation/edit.html", form=form, material=material), 400
+
+
+def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source: str | None,
+               actor: str) -> transfer.ImportReport:
+    """Import an uploaded file in one transaction; stored only if no row was rejected or `keep_good`."""
+    suffix = Path(secure_filename(filename or "")).suffix.lower()
+    if suffix not in IMPORT_SUFFIXES:
+        raise transfer.ImportFileError(
+            f"{filename or 'the file'!r} is not a CSV, TSV or SDF file (its name should end in "
+            f"{', '.join(IMPORT_SUFFIXES)}); export your data in one of these formats and upload it again")
+    rows = transfer.read_rows(f"upload{suffix}", data=data)
+    session = db_session()
+    try:
+        report = transfer.import_rows(session, rows, keep_good=keep_good, actor=actor,
+                                      default_structure_source=structure_source or None)
+        if report.committed:
+            session.commit()
+        else:
+            session.rollback()
+    except BaseException:
+        session.rollback()
+        raise
+    return report
+
+
+@blueprint.route("/import", methods=["GET", "POST"])
+@curators_only
+def import_file():
+    form = ImportForm()
+    report = None
+    status = 200
+    if request.method == "POST":
+        status = 400
+        if form.validate():
+            upload = form.file.data
+            try:
+                report = run_import(upload.filename, upload.read(), keep_good=form.keep_good.data,
+                                    structure_source=(form.structure_source.data or "").strip(),
+                                    actor=current_user.username)
+                status = 200 if report.committed else 422
+            except OlibraError as exc:
+                form.file.errors = [*form.file.errors, str(exc)]
+    return render_template("curation/import.html", form=form, report=report), status
+
+
+@blueprint.route("/vocabulary", methods=["GET", "POST"])
+def vocabulary():
+    form = VocabularyForm()
+    status = 200
+    if request.method == "POST":
+        status = 400
+        if form.validate():
+            try:
+                with write_transaction() as session:
+                    term = form.term.data.strip().lower()
+                    known = term in curation.vocabulary(session)
+                    curation.add_descriptor(session, term, family=form.family.data,
+                                            description=form.description.data, actor=current_user.username)
+                flash(f"{term!r} was already in the vocabulary." if known
+                      else f"Added {term!r} to the vocabulary.", "notice" if known else "success")
+                return redirect(url_for("curation.vocabulary"))
+            except OlibraError as exc:
+                form.term.errors = [*form.term.errors, str(exc)]
+    terms = queries.vocabulary_with_counts(db_session())
+    return render_template("curation/vocabulary.html", form=form, terms=terms), status

@@ -1,0 +1,29 @@
+"""2D depictions of stored structures as SVG (RDKit's rdMolDraw2D), for the material pages."""
+
+from __future__ import annotations
+
+from rdkit import Chem
+from rdkit.Chem import rdDepictor
+from rdkit.Chem.Draw import rdMolDraw2D
+
+from library.errors import OlibraError
+
+
+def structure_svg(molfile: str, smiles: str, *, width_px: int = 360, height_px: int = 260) -> str:
+    """SVG text of the stored structure (molfile, else SMILES), stereo and isotope labels shown."""
+    mol = Chem.MolFromMolBlock(molfile, removeHs=False) if molfile else None
+    if mol is None:
+        mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        raise OlibraError("the stored structure cannot be drawn; check it with `olibra show`")
+    mol = Chem.RemoveHs(mol)  # keeps isotope-labelled hydrogens (deuterium), which are shown
+    if mol.GetNumConformers() == 0 or mol.GetConformer().Is3D():
+        rdDepictor.Compute2DCoords(mol)
+    drawer = rdMolDraw2D.MolDraw2DSVG(width_px, height_px)
+    options = drawer.drawOptions()
+    options.addStereoAnnotation = True
+    options.clearBackground = False
+    rdMolDraw2D.PrepareAndDrawMolecule(drawer, mol)
+    drawer.FinishDrawing()
+    return drawer.GetDrawingText()
+

@@ -1,0 +1,79 @@
+"""The curation forms (Flask-WTF: each carries its CSRF token). Chemistry checks happen in the core."""
+
+from __future__ import annotations
+
+from flask_wtf import FlaskForm
+from flask_wtf.file import FileField, FileRequired
+from wtforms import BooleanField, HiddenField, SelectField, StringField, TextAreaField
+from wtforms.validators import DataRequired, Length, Optional
+
+from library.catalogue.models import MATERIAL_STATUSES
+from library.computations import VIBRATION_ENGINES
+
+PROVENANCE_HELP = ("from memory, demo, measured: <how>, computed: <how>, "
+                   "or literature: <journal volume, page (year)>")
+
+
+def split_lines(text: str | None) -> list[str]:
+    """Synonyms typed one per line (or separated by '|')."""
+    return [part.strip() for line in (text or "").splitlines() for part in line.split("|") if part.strip()]
+
+
+class MaterialForm(FlaskForm):
+    structure = TextAreaField(
+        "Structure", validators=[DataRequired(message="Give the structure as SMILES, InChI or a molfile."),
+                                 Length(max=100_000)],
+        description="SMILES, InChI or a molfile block; stereochemistry and isotopes are kept.")
+    name = StringField("Preferred name", validators=[DataRequired(message="Give the material a name."),
+                                                     Length(max=200)])
+    synonyms = TextAreaField("Synonyms", validators=[Optional(), Length(max=10_000)],
+                             description="One per line.")
+    cas = StringField("CAS RN", validators=[Optional(), Length(max=20)],
+                      description="Checked with the check digit rule, e.g. 106-22-9.")
+    family = StringField("Olfactive family", validators=[Optional(), Length(max=40)])
+    odors = StringField("Odor descriptors", validators=[Optional(), Length(max=2000)],
+                        description="Vocabulary terms separated by commas, each optionally term:strength "
+                                    "with a strength from 0 to 1, e.g. citrus:0.8, green.")
+    notes = TextAreaField("Notes", validators=[Optional(), Length(max=10_000)])
+    source = StringField("Source of these values", default="from memory",
+                         validators=[DataRequired(message="Say where the values come from."), Length(max=500)],
+                         description=PROVENANCE_HELP)
+
+
+class EditMaterialForm(FlaskForm):
+    name = StringField("Preferred name", validators=[DataRequired(message="Give the material a name."),
+                                                     Length(max=200)])
+    synonyms = TextAreaField("Synonyms", validators=[Optional(), Length(max=10_000)],
+                             description="One per line.")
+    cas = StringField("CAS RN", validators=[Optional(), Length(max=20)])
+    family = StringField("Olfactive family", validators=[Optional(), Length(max=40)])
+    odors = StringField("Odor descriptors", validators=[Optional(), Length(max=2000)],
+                        description="Terms separated by commas, each optionally term:strength (0 to 1).")
+    odor_source = StringField("Source of changed odor descriptors", default="from memory",
+                              validators=[Optional(), Length(max=500)], description=PROVENANCE_HELP)
+    notes = TextAreaField("Notes", validators=[Optional(), Length(max=10_000)])
+    source = StringField("Source of the other changed values", default="from memory",
+                         validators=[Optional(), Length(max=500)], description=PROVENANCE_HELP)
+    status = SelectField("Status", choices=list(MATERIAL_STATUSES))
+    restricted = BooleanField("Restricted (kept out of substitute lists)")
+    loaded_at = HiddenField()
+
+
+class ImportForm(FlaskForm):
+    file = FileField("File", validators=[FileRequired(message="Choose a CSV, TSV or SDF file to import.")],
+                     description="CSV/TSV with a header row, or SDF; columns as in the import format.")
+    keep_good = BooleanField("Keep the good rows when some rows are rejected")
+    structure_source = StringField(
+        "Source for rows without a structure_source", validators=[Optional(), Length(max=500)],
+        description="Leave empty to reject such rows; otherwise e.g. from memory.")
+
+
+class VocabularyForm(FlaskForm):
+    term = StringField("Term", validators=[DataRequired(message="Give the new term."), Length(max=60)])
+    family = StringField("Family", validators=[Optional(), Length(max=40)])
+    description = StringField("Description", validators=[Optional(), Length(max=500)])
+
+
+class RecomputeForm(FlaskForm):
+    kinds = SelectField("Records (all: shape and vibration)", choices=["all", "shape", "vibration"])
+    engine = SelectField("Vibration engine", choices=list(VIBRATION_ENGINES))

@@ -1,0 +1,238 @@
+"""Read-side helpers shared by the pages and the JSON API: searching, paging, one material's records.
+
+Plain catalogue queries and dict shaping; no chemistry here.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+from sqlalchemy import func, or_, select
+from sqlalchemy.orm import Session, selectinload
+
+from library.catalogue import records as records_module
+from library.catalogue.models import (
+    COMPUTED_KINDS,
+    AuditEntry,
+    BackgroundJob,
+    ComputedRecord,
+    Material,
+    MaterialOdor,
+    OdorDescriptor,
+    PairFlag,
+    Synonym,
+)
+from library.catalogue.records import EngineStamp
+from library.errors import OlibraError
+
+MAX_QUERY_CHARS = 200
+MAX_PAGE_SIZE = 200
+SHAPE_SUMMARY_LABELS = {
+    "npr1": ("NPR1", ""),
+    "npr2": ("NPR2", ""),
+    "radius_of_gyration_a": ("radius of gyration", "Å"),
+    "asphericity": ("asphericity", ""),
+    "volume_a3": ("volume", "Å³"),
+    "surface_area_a2": ("surface area", "Å²"),
+    "conformer_count": ("conformers", ""),
+    "stereoisomer_count": ("stereoisomers", ""),
+    "force_field": ("force field", ""),
+}
+
+
+@dataclass(frozen=True)
+class Page:
+    items: list[Material]
+    total: int
+    page: int
+    per_page: int
+
+    @property
+    def pages(self) -> int:
+        return max(1, math.ceil(self.total / self.per_page))
+
+
+def _like_pattern(text: str) -> str:
+    escaped = text.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
+    return f"%{escaped}%"
+
+
+def search_materials(session: Session, query: str = "", *, page: int = 1, per_page: int = 50,
+                     include_retired: bool = False) -> Page:
+    """Materials whose name, synonym, CAS RN or InChIKey contains `query` (case-insensitive), paged."""
+    query = (query or "").strip()
+    if len(query) > MAX_QUERY_CHARS:
+        raise OlibraError(f"the search text is {len(query)} characters long; use at most {MAX_QUERY_CHARS}")
+    per_page = max(1, min(int(per_page), MAX_PAGE_SIZE))
+    page = max(1, int(page))
+    conditions = []
+    if query:
+        pattern = _like_pattern(query.lower())
+        conditions.append(or_(
+            func.lower(Material.preferred_name).like(pattern, escape="\\"),
+            func.lower(Material.cas_rn).like(pattern, escape="\\"),
+            func.lower(Material.inchikey).like(pattern, escape="\\"),
+            Material.id.in_(select(Synonym.material_id).where(
+                func.lower(Synonym.name).like(pattern, escape="\\"))),
+        ))
+    if not include_retired:
+        conditions.append(Material.status == "active")
+    total = session.scalar(select(func.count()).select_from(Material).where(*conditions)) or 0
+    items = list(session.scalars(
+        select(Material).where(*conditions)
+        .options(selectinload(Material.synonyms),
+                 selectinload(Material.odors).selectinload(MaterialOdor.descriptor))
+        .order_by(func.lower(Material.preferred_name), Material.id)
+        .offset((page - 1) * per_page).limit(per_page)))
+    return Page(items, total, page, per_page)
+
+
+def parse_page_arguments(args) -> tuple[str, int, bool]:
+    """(query, page, include_retired) from request arguments; a bad page number is a clear error."""
+    text = args.get("page", "1").strip() or "1"
+    if not text.isdigit() or int(text) < 1:
+        raise OlibraError(f"page {text[:20]!r} is not a page number; use 1, 2, 3 ...")
+    return args.get("q", ""), int(text), args.get("retired", "") in ("1", "on", "true", "yes")
+
+
+@lru_cache(maxsize=1)
+def current_stamps() -> dict[tuple[str, str], EngineStamp]:
+    """The stamp each (kind, engine name) record must carry now; engines not installed are left out."""
+    from library import computations
+
+    out: dict[tuple[str, str], EngineStamp] = {}
+    plans = [computations.Plan(kinds=("shape",))]
+    plans += [computations.Plan(kinds=("vibration",), vibration_engine=e) for e in computations.VIBRATION_ENGINES]
+    for plan in plans:
+        try:
+            stamps = computations.stamps(plan)
+        except (ImportError, ValueError, OlibraError):
+            continue  # that engine is not available in this installation
+        for stamp in stamps:
+            out[(stamp.kind, stamp.engine_name)] = stamp
+    return out
+
+
+@dataclass(frozen=True)
+class RecordView:
+    kind: str
+    engine_name: str
+    engine_version: str
+    computed_at: object
+    elapsed_s: float | None
+    state: str  # 'current' | 'stale' | 'engine not available'
+    summary: dict
+
+
+def record_views(session: Session, material: Material) -> list[RecordView]:
+    stamps = current_stamps()
+    views = []
+    for record in session.scalars(select(ComputedRecord).where(ComputedRecord.material_id == material.id)
+                                  .order_by(ComputedRecord.kind, ComputedRecord.engine_name)):
+        stamp = stamps.get((record.kind, record.engine_name))
+        if stamp is None:
+            state = "engine not available"
+        else:
+            state = "current" if records_module.is_current(record, stamp, material.inchikey) else "stale"
+        views.append(RecordView(record.kind, record.engine_name, record.engine_version, record.computed_at,
+                                record.elapsed_s, state, json.loads(record.summary_json or "{}")))
+    return views
+
+
+def missing_kinds(views: list[RecordView]) -> list[str]:
+    return [kind for kind in COMPUTED_KINDS if not any(v.kind == kind for v in views)]
+
+
+def shape_summary(views: list[RecordView]) -> tuple[list[tuple[str, str, str]], RecordView] | None:
+    """(label, value, unit) rows of the shape record, NPR1 and NPR2 first, and the record itself."""
+    shape = next((v for v in views if v.kind == "shape"), None)
+    if shape is None:
+        return None
+    rows = []
+    for key, (label, unit) in SHAPE_SUMMARY_LABELS.items():
+        if key in shape.summary:
+            value = shape.summary[key]
+            rows.append((label, f"{value:.3f}" if isinstance(value, float) else str(value), unit))
+    return rows, shape
+
+
+def summary_rows(summary: dict) -> list[tuple[str, str]]:
+    rows = []
+    for key, value in summary.items():
+        if isinstance(value, float):
+            text = f"{value:.4g}"
+        elif isinstance(value, list):
+            shown = [f"{v:.0f}" if isinstance(v, float) else str(v) for v in value[:12]]
+            text = ", ".join(shown) + (" …" if len(value) > 12 else "")
+        else:
+            text = str(value)
+        rows.append((key.replace("_", " "), text))
+    return rows
+
+
+def audit_history(session: Session, material_id: int, *, limit: int = 200) -> list[AuditEntry]:
+    return list(session.scalars(select(AuditEntry).where(
+        AuditEntry.entity == "material", AuditEntry.entity_id == material_id)
+        .order_by(AuditEntry.id.desc()).limit(limit)))
+
+
+def pair_flags(session: Session, material_id: int) -> list[tuple[PairFlag, Material]]:
+    flags = session.scalars(select(PairFlag).where(
+        (PairFlag.material_a_id == material_id) | (PairFlag.material_b_id == material_id))
+        .order_by(PairFlag.id)).all()
+    return [(f, f.material_b if f.material_a_id == material_id else f.material_a) for f in flags]
+
+
+def vocabulary_with_counts(session: Session) -> list[tuple[OdorDescriptor, int]]:
+    counts = dict(session.execute(select(MaterialOdor.descriptor_id, func.count())
+                                  .group_by(MaterialOdor.descriptor_id)).all())
+    return [(d, counts.get(d.id, 0))
+            for d in session.scalars(select(OdorDescriptor).order_by(OdorDescriptor.term))]
+
+
+def provenance_text(kind: str, reference: str | None) -> str:
+    return f"{kind}: {reference}" if reference else kind
+
+
+def material_json(material: Material, *, detail: bool = False) -> dict:
+    """A material for the JSON API (the list shows the main fields; `detail` adds the rest)."""
+    data = {
+        "id": material.id,
+        "name": material.preferred_name,
+        "synonyms": [s.name for s in material.synonyms],
+        "cas": material.cas_rn,
+        "inchikey": material.inchikey,
+        "formula": material.formula,
+        "family": material.olfactive_family,
+        "odor": [{"term": o.descriptor.term, "strength": o.strength}
+                 for o in sorted(material.odors, key=lambda o: o.descriptor.term)],
+        "status": material.status,
+        "restricted": material.restricted,
+    }
+    if detail:
+        data.update(
+            smiles=material.smiles, inchi=material.inchi,
+            average_mass_g_per_mol=round(material.average_mass_g_per_mol, 4),
+            monoisotopic_mass_da=round(material.monoisotopic_mass_da, 6),
+            heavy_atom_count=material.heavy_atom_count, stereo_status=material.stereo_status,
+            unassigned_stereo_count=material.unassigned_stereo_count, notes=material.notes,
+            provenance={p.field: provenance_text(p.kind, p.reference) for p in material.provenance},
+        )
+        for item, odor in zip(data["odor"], sorted(material.odors, key=lambda o: o.descriptor.term)):
+            item["source"] = provenance_text(odor.source_kind, odor.source_reference)
+    return data
+
+
+def job_json(job: BackgroundJob) -> dict:
+    return {
+        "id": job.id, "kind": job.kind, "description": job.description, "state": job.state,
+        "total": job.total, "done": job.done, "failed": job.failed, "message": job.message,
+        "created_by": job.created_by,
+        "created_at": job.created_at.isoformat() if job.created_at else None,
+        "started_at": job.started_at.isoformat() if job.started_at else None,
+        "finished_at": job.finished_at.isoformat() if job.finished_at else None,
+        "parameters": json.loads(job.parameters_json or "{}"),
+    }
