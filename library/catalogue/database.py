@@ -23,7 +23,7 @@ from sqlalchemy.engine import Engine, make_url
 from sqlalchemy.exc import ArgumentError, NoSuchModuleError, OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
-from library.catalogue.models import CatalogueState
+from library.catalogue.models import BackgroundJob, CatalogueState, User
 from library.errors import OlibraError
 
 ENVIRONMENT_VARIABLE = "OLIBRA_DB"
@@ -137,11 +137,15 @@ def check_schema(engine: Engine) -> None:
             "run `olibra init` to upgrade it")
 
 
+# Rows that are not catalogue content: changing them leaves the revision alone.
+NOT_CATALOGUE = (CatalogueState, User, BackgroundJob)
+
+
 def _bump_revision(session: Session, _flush_context, _instances) -> None:
     """Every flush that changes catalogue rows moves the revision on by one."""
     if session.info.get("revision_bumped"):
         return
-    changed = [o for o in (*session.new, *session.dirty, *session.deleted) if not isinstance(o, CatalogueState)]
+    changed = [o for o in (*session.new, *session.dirty, *session.deleted) if not isinstance(o, NOT_CATALOGUE)]
     if not changed:
         return
     session.info["revision_bumped"] = True

@@ -73,12 +73,40 @@ def first_search(catalogue, args) -> None:
           f"  olibra compare Citral 'Geranyl nitrile'")
 
 
-# Steps after the catalogue is ready; the web interface adds its own.
-DEMO_STEPS: list = [first_search]
+DEMO_ACCOUNT = "demo"
+
+
+def serve_web(catalogue, args) -> None:
+    """Start the web interface on this machine with a fresh password for the demo curator account."""
+    import argparse
+    import secrets
+
+    from library.catalogue import accounts
+    from library.cli.web_commands import cmd_serve
+
+    if args.no_serve:
+        return
+    password = secrets.token_urlsafe(12)
+    with accounts.bookkeeping_sessions(catalogue.engine)() as session:
+        with session.begin():
+            if accounts.find_user(session, DEMO_ACCOUNT) is None:
+                accounts.create_user(session, DEMO_ACCOUNT, password, "curator", actor="olibra demo")
+            else:
+                accounts.set_password(session, DEMO_ACCOUNT, password, actor="olibra demo")
+    print(f"\nweb interface: sign in as {DEMO_ACCOUNT!r} with password {password} (new on every demo run)")
+    catalogue.dispose()
+    cmd_serve(argparse.Namespace(db=catalogue.url, here=False, host="127.0.0.1", port=args.port,
+                                 threads=4, processes=args.processes))
+
+
+# Steps after the catalogue is ready.
+DEMO_STEPS: list = [first_search, serve_web]
 
 
 def register(commands) -> None:
     p = commands.add_parser("demo", help="build a demo catalogue from the seed files and compute its records")
     p.add_argument("--folder", default="olibra-demo", help="folder for the demo catalogue (default ./olibra-demo)")
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
+    p.add_argument("--port", type=int, default=8150, help="web interface port on 127.0.0.1 (default 8150)")
+    p.add_argument("--no-serve", action="store_true", help="stop after the first search; do not start the web server")
     p.set_defaults(handler=cmd_demo)

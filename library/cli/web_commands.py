@@ -87,8 +87,8 @@ def cmd_serve(args) -> int:
     from webui import SECRET_KEY_VARIABLE, create_app
     from webui.background import mark_abandoned
 
-    if not 0 < args.port < 65536:
-        raise OlibraError(f"port {args.port} is not between 1 and 65535")
+    if not 0 <= args.port < 65536:
+        raise OlibraError(f"port {args.port} is not between 0 (any free port) and 65535")
     url = resolve_url(args.db, here=args.here)
     catalogue = Catalogue(url)  # refuses a missing or old schema before we bind a port
     config = {"OLIBRA_DB": url}
