@@ -160,17 +160,7 @@ def shape_summary(views: list[RecordView]) -> tuple[list[tuple[str, str, str]], 
 
 
 def summary_rows(summary: dict) -> list[tuple[str, str]]:
-    rows = []
-    for key, value in summary.items():
-        if isinstance(value, float):
-            text = f"{value:.4g}"
-        elif isinstance(value, list):
-            shown = [f"{v:.0f}" if isinstance(v, float) else str(v) for v in value[:12]]
-            text = ", ".join(shown) + (" …" if len(value) > 12 else "")
-        else:
-            text = str(value)
-        rows.append((key.replace("_", " "), text))
-    return rows
+    return records_module.summary_items(summary)
 
 
 def audit_history(session: Session, material_id: int, *, limit: int = 200) -> list[AuditEntry]:

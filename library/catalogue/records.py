@@ -116,3 +116,18 @@ def load_records(session: Session, kind: str, engine_name: str, *, material_ids=
             record.material_id, record.kind, record.engine_name, record.engine_version,
             record.parameter_hash, json.loads(record.summary_json or "{}"), arrays)
     return loaded
+
+
+def summary_items(summary: dict, *, list_limit: int = 12) -> list[tuple[str, str]]:
+    """A record's summary as (label, text) pairs for display: numbers to 4 significant digits."""
+    items = []
+    for key, value in summary.items():
+        if isinstance(value, float):
+            text = f"{value:.4g}"
+        elif isinstance(value, list):
+            shown = [f"{v:.4g}" if isinstance(v, float) else str(v) for v in value[:list_limit]]
+            text = ", ".join(shown) + (" ..." if len(value) > list_limit else "")
+        else:
+            text = str(value)
+        items.append((key.replace("_", " "), text))
+    return items

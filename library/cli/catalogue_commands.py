@@ -9,7 +9,7 @@ from pathlib import Path
 from sqlalchemy import func, select
 from sqlalchemy.orm import selectinload
 
-from library.catalogue import curation, transfer
+from library.catalogue import curation, records, transfer
 from library.catalogue.database import Catalogue, describe_url, initialize, resolve_url
 from library.catalogue.models import AuditEntry, ComputedRecord, Material, MaterialOdor, OdorDescriptor, PairFlag
 from library.cli.output import FORMATS, emit, progress_bar
@@ -115,17 +115,7 @@ def current_versions() -> set[str]:
 
 def summary_lines(summary: dict) -> list[str]:
     """A computed record's summary as short 'name  value' lines."""
-    lines = []
-    for key, value in summary.items():
-        if isinstance(value, float):
-            text = f"{value:.4g}"
-        elif isinstance(value, list):
-            shown = [f"{v:.4g}" if isinstance(v, float) else str(v) for v in value[:12]]
-            text = ", ".join(shown) + (" ..." if len(value) > 12 else "")
-        else:
-            text = str(value)
-        lines.append(f"{key.replace('_', ' '):<30}{text}")
-    return lines
+    return [f"{label:<30}{text}" for label, text in records.summary_items(summary)]
 
 
 def cmd_list(args) -> int:
