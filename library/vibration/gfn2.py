@@ -28,7 +28,7 @@ from library import units
 from library.vibration._threads import single_threaded_blas
 from library.vibration.errors import NotAMinimumError, VibrationInputError
 from library.vibration.normal_modes import analyze, atomic_masses_amu, ir_intensities_km_mol
-from library.vibration.result import ConformerVibrations
+from library.vibration.result import ConformerVibrations, quality_notes
 
 try:
     TBLITE_VERSION = importlib.metadata.version("tblite")
@@ -303,13 +303,9 @@ def vibrations(mol: Chem.Mol, *, conf_id: int = -1, accuracy: float = 0.01, elec
         direction = modes.displacements[int(np.argmin(modes.frequencies_cm1))]
         positions = positions + 0.1 * direction / np.abs(direction).max()
     residual = float(np.linalg.norm(gradient))
-    if reoptimizations:
-        notes.append(f"saddle point re-optimized {reoptimizations} time(s) along its imaginary mode")
-    if modes.n_imaginary:
-        notes.append(f"{modes.n_imaginary} small imaginary mode(s) above -{imaginary_tolerance_cm1} cm^-1 kept "
-                     "(numerical noise of a flat mode)")
-    if residual > gradient_tolerance_kcal_mol_a:
-        notes.append(f"residual gradient {residual:.2e} kcal/mol/A above tolerance {gradient_tolerance_kcal_mol_a:.0e}")
+    notes += quality_notes(reoptimizations=reoptimizations, modes=modes,
+                           imaginary_tolerance_cm1=imaginary_tolerance_cm1, residual_kcal_mol_a=residual,
+                           gradient_tolerance_kcal_mol_a=gradient_tolerance_kcal_mol_a)
     return ConformerVibrations(
         engine=ENGINE_NAME,
         positions_a=positions,

@@ -30,7 +30,7 @@ from rdkit.Chem import rdForceFieldHelpers
 from library.vibration._threads import single_threaded_blas
 from library.vibration.errors import MissingParametersError, NotAMinimumError, VibrationInputError
 from library.vibration.normal_modes import analyze, atomic_masses_amu
-from library.vibration.result import ConformerVibrations
+from library.vibration.result import ConformerVibrations, quality_notes
 
 ENGINE_NAME = "mmff94"
 ENGINE_VERSION = f"MMFF94 (RDKit {rdkit.__version__}); olibra vibration 1"
@@ -229,13 +229,9 @@ def vibrations(mol: Chem.Mol, *, conf_id: int = -1, variant: str = "MMFF94", ste
         direction = direction / np.abs(direction).max()
         model.set_positions(x + 0.1 * direction.ravel())
     residual = float(np.linalg.norm(gradient))
-    if reoptimizations:
-        notes.append(f"saddle point re-optimized {reoptimizations} time(s) along its imaginary mode")
-    if modes.n_imaginary:
-        notes.append(f"{modes.n_imaginary} small imaginary mode(s) above -{imaginary_tolerance_cm1} cm^-1 kept "
-                     "(numerical noise of a flat mode)")
-    if residual > gradient_tolerance_kcal_mol_a:
-        notes.append(f"residual gradient {residual:.2e} kcal/mol/A above tolerance {gradient_tolerance_kcal_mol_a:.0e}")
+    notes += quality_notes(reoptimizations=reoptimizations, modes=modes,
+                           imaginary_tolerance_cm1=imaginary_tolerance_cm1, residual_kcal_mol_a=residual,
+                           gradient_tolerance_kcal_mol_a=gradient_tolerance_kcal_mol_a)
     return ConformerVibrations(
         engine=ENGINE_NAME,
         positions_a=x.reshape(-1, 3),

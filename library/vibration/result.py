@@ -42,3 +42,19 @@ class ConformerVibrations:
     def n_imaginary(self) -> int:
         """Number of modes with a negative force constant."""
         return self.modes.n_imaginary
+
+
+def quality_notes(*, reoptimizations: int, modes: NormalModes, imaginary_tolerance_cm1: float,
+                  residual_kcal_mol_a: float, gradient_tolerance_kcal_mol_a: float) -> list[str]:
+    """Remarks every engine attaches to a conformer result: re-optimizations, small imaginary
+    modes kept, and a residual gradient above tolerance."""
+    notes = []
+    if reoptimizations:
+        notes.append(f"saddle point re-optimized {reoptimizations} time(s) along its imaginary mode")
+    if modes.n_imaginary:
+        notes.append(f"{modes.n_imaginary} small imaginary mode(s) above -{imaginary_tolerance_cm1} cm^-1 kept "
+                     "(numerical noise of a flat mode)")
+    if residual_kcal_mol_a > gradient_tolerance_kcal_mol_a:
+        notes.append(f"residual gradient {residual_kcal_mol_a:.2e} kcal/mol/A above tolerance "
+                     f"{gradient_tolerance_kcal_mol_a:.0e}")
+    return notes
