@@ -14,14 +14,11 @@ import pytest
 from sqlalchemy import create_engine, text
 
 from library.catalogue import curation
+from catalogue_helpers import TEST_VOCABULARY
 from library.catalogue.database import initialize
 
 POSTGRES_ENV = "OLIBRA_TEST_POSTGRES_URL"
 
-TEST_VOCABULARY = {
-    "citrus": "citrus", "floral": "floral", "green": "green", "woody": "woody", "minty": "herbal",
-    "sweet": "gourmand", "vanilla": "gourmand", "fruity": "fruity", "spicy": "spicy", "herbal": "herbal",
-}
 
 
 def _fresh_postgres_url() -> str:
@@ -64,12 +61,3 @@ def catalogue(catalogue_url):
     yield opened
     opened.dispose()
 
-
-def draft(smiles: str, name: str, **kwargs):
-    """A material draft with 'from memory' provenance, for tests."""
-    sources = {"structure": "from memory", "preferred_name": "from memory"}
-    if kwargs.get("cas"):
-        sources["cas_rn"] = "from memory"
-    if kwargs.get("odors"):
-        sources["odor"] = "from memory"
-    return curation.draft_material(smiles, name=name, sources=sources, **kwargs)

@@ -7,7 +7,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from sqlalchemy import select
 
-from conftest import draft
+from catalogue_helpers import draft
 from library.catalogue import curation, transfer
 from library.catalogue.models import AuditEntry, Material, MaterialOdor, Provenance, Synonym
 from library.structures import StructureError, standardize

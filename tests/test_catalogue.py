@@ -5,7 +5,7 @@ import json
 import pytest
 from sqlalchemy import func, select, text
 
-from conftest import draft
+from catalogue_helpers import draft
 from library.catalogue import curation, transfer
 from library.catalogue.models import AuditEntry, Material, Provenance
 

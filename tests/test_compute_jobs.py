@@ -8,7 +8,7 @@ import time
 
 from sqlalchemy import func, select, update
 
-from conftest import draft
+from catalogue_helpers import draft
 from library import computations
 from library.catalogue import curation, jobs
 from library.catalogue.database import initialize

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from conftest import draft
+from catalogue_helpers import draft
 from library import computations
 from library.catalogue import curation, jobs, observations
 from library.search import service
@@ -32,7 +32,7 @@ ODORS = {"Citral": "citrus", "Geranyl nitrile": "citrus", "Citronellal": "citrus
 def searchable(tmp_path_factory):
     """A SQLite catalogue with computed shape and vibration (MMFF94) records for every material."""
     from library.catalogue.database import initialize
-    from conftest import TEST_VOCABULARY
+    from catalogue_helpers import TEST_VOCABULARY
 
     folder = tmp_path_factory.mktemp("search")
     catalogue = initialize(f"sqlite:///{folder / 'search.sqlite'}")

@@ -2,7 +2,10 @@
 
 Blueprints, one per area: `auth` (sign-in), `browse` (catalogue browser and
 material pages), `curation` (add, edit, import, vocabulary), `jobs`
-(background recompute), `api` (JSON under /api) and `health`.
+(background recompute), `substitutes`, `compare`, `disagreements` and
+`scorecard` (the search pages), `api` and `search_api` (JSON under /api) and
+`health`. The similarity index lives in memory (`IndexCache`), rebuilt when the
+catalogue revision moves.
 
 Every state-changing request (POST, PUT, PATCH, DELETE) needs a valid CSRF
 token and, apart from signing in and out, a signed-in curator; reading needs a
@@ -12,10 +15,12 @@ signed-in reader or curator. See README.md, "Web interface and JSON API".
 from __future__ import annotations
 
 import os
+import threading
+from collections import OrderedDict
 from contextlib import contextmanager
-from typing import Any, Iterator, Mapping
+from typing import Any, Callable, Iterator, Mapping
 
-from flask import Flask, current_app, g
+from flask import Flask, current_app, g, has_request_context
 from flask_wtf.csrf import CSRFProtect
 from sqlalchemy.orm import Session, sessionmaker
 
@@ -35,13 +40,86 @@ class SecretKeyMissing(OlibraError):
     """The app would sign session cookies with no key."""
 
 
+class IndexCache:
+    """The catalogue's similarity index held in memory, plus small results computed from it.
+
+    Each use reads the catalogue revision (one cheap query) and rebuilds the index
+    when it moved; `service.load_index` builds from one consistent snapshot and the
+    new index replaces the old one in a single assignment, so a request sees
+    either the old or the new catalogue, never a mixture. One thread rebuilds;
+    the others wait for it. Results memoized with `memo` (disagreement lists,
+    scorecards, form choices) are dropped with the index they came from.
+    """
+
+    MEMO_SIZE = 32
+
+    def __init__(self, state: "WebState", *, vibration_engine: str = "mmff", cache_dir: str | None = None):
+        self._state = state
+        self.vibration_engine = vibration_engine
+        self._cache_dir = cache_dir
+        self._build_lock = threading.Lock()
+        self._memo_lock = threading.Lock()
+        self._current: tuple[Any, int] | None = None  # (CatalogueIndex, catalogue revision it was built from)
+        self._memo: OrderedDict = OrderedDict()
+
+    def get(self):
+        """(CatalogueIndex, revision) for the catalogue as it is now; SearchError when nothing is indexed.
+
+        Within one request the first answer is kept, so a page is built from one index throughout.
+        """
+        if has_request_context() and "olibra_index" in g:
+            return g.olibra_index
+        current = self._fresh()
+        if has_request_context():
+            g.olibra_index = current
+        return current
+
+    def _fresh(self):
+        from pathlib import Path
+
+        from library.search import service
+
+        revision = self._state.catalogue.revision()
+        current = self._current
+        if current is not None and current[1] == revision:
+            return current
+        with self._build_lock:
+            current = self._current
+            if current is not None and current[1] == revision:
+                return current
+            index = service.load_index(self._state.catalogue, vibration_engine=self.vibration_engine,
+                                       cache_dir=Path(self._cache_dir) if self._cache_dir else None)
+            built_from = int(index.revision.split("-", 1)[0].lstrip("r") or 0)
+            with self._memo_lock:
+                self._memo.clear()
+                self._current = (index, built_from)
+            return self._current
+
+    def memo(self, key: tuple, compute: Callable[[], Any]):
+        """compute() once per key and index revision (a small LRU); the key must hold every input."""
+        _, revision = self.get()
+        full_key = (revision, *key)
+        with self._memo_lock:
+            if full_key in self._memo:
+                self._memo.move_to_end(full_key)
+                return self._memo[full_key]
+        value = compute()
+        with self._memo_lock:
+            if self._current is not None and self._current[1] == revision:
+                self._memo[full_key] = value
+                while len(self._memo) > self.MEMO_SIZE:
+                    self._memo.popitem(last=False)
+        return value
+
+
 class WebState:
     """The catalogue behind one app, opened on first use (so a missing schema becomes an error page)."""
 
-    def __init__(self, url: str):
+    def __init__(self, url: str, *, vibration_engine: str = "mmff", index_cache_dir: str | None = None):
         self.url = url
         self._catalogue: Catalogue | None = None
         self._bookkeeping: sessionmaker[Session] | None = None
+        self.index_cache = IndexCache(self, vibration_engine=vibration_engine, cache_dir=index_cache_dir)
 
     @property
     def catalogue(self) -> Catalogue:
@@ -73,6 +151,8 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         WTF_CSRF_TIME_LIMIT=None,  # the token lives as long as the signed session
         OLIBRA_PAGE_SIZE=50,
         OLIBRA_JOB_PROCESSES=None,  # worker processes for a recompute (default: one per core)
+        OLIBRA_VIBRATION_ENGINE="mmff",  # vibration records the search pages use
+        OLIBRA_INDEX_CACHE_DIR=None,  # folder of the on-disk index cache (default: the user cache folder)
     )
     if config:
         app.config.update(config)
@@ -83,7 +163,9 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
                 "string (e.g. `python -c 'import secrets; print(secrets.token_hex(32))'`)")
         app.config["SECRET_KEY"] = os.urandom(32)
 
-    app.extensions["olibra"] = WebState(app.config["OLIBRA_DB"])
+    app.extensions["olibra"] = WebState(app.config["OLIBRA_DB"],
+                                        vibration_engine=app.config["OLIBRA_VIBRATION_ENGINE"],
+                                        index_cache_dir=app.config["OLIBRA_INDEX_CACHE_DIR"])
     csrf.init_app(app)
 
     @app.teardown_appcontext
@@ -100,17 +182,36 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         response.headers.setdefault("Referrer-Policy", "same-origin")
         return response
 
-    from webui import api, auth, browse, curation, errors, health, jobs
+    from webui import (
+        api,
+        auth,
+        browse,
+        compare,
+        curation,
+        disagreements,
+        errors,
+        health,
+        jobs,
+        scorecard,
+        search_api,
+        substitutes,
+    )
 
     auth.init_app(app)
     errors.init_app(app)
-    for module in (auth, browse, curation, jobs, api, health):
+    for module in (auth, browse, curation, jobs, substitutes, compare, disagreements, scorecard, api,
+                   search_api, health):
         app.register_blueprint(module.blueprint)
     return app
 
 
 def web_state() -> WebState:
     return current_app.extensions["olibra"]
+
+
+def search_index():
+    """(CatalogueIndex, catalogue revision) of the app's in-memory index, current with the catalogue."""
+    return web_state().index_cache.get()
 
 
 def db_session() -> Session:

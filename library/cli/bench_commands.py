@@ -47,7 +47,16 @@ def cmd_bench_search(args) -> int:
     return 0
 
 
-BENCHES = {"shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search}
+def cmd_bench_web(args) -> int:
+    from webui import bench
+
+    _header("web", None)
+    bench.run(args.db)
+    return 0
+
+
+BENCHES = {"shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
+           "web": cmd_bench_web}
 
 
 def cmd_bench(args) -> int:

@@ -268,26 +268,8 @@ def find_substitutes(catalogue: Catalogue, query_text: str, *, metric: str = "bl
         raise SearchError("k must be at least 1")
     cat_index = cat_index or load_index(catalogue, vibration_engine=vibration_engine)
     query = resolve_query(catalogue, query_text, cat_index)
-    filters = filters or build_filter()
-    rerank = overlay_scorer(catalogue, cat_index, query) if metric == "shape" and rerank_depth > 0 else None
-    try:
-        hits = cat_index.index.query(
-            query_id=query.material_id if query.material_id is not None else -1,
-            shape=query.shape_vector, fingerprint=query.fingerprint,
-            structure=None if query.material_id is not None else query.smiles,
-            metric=metric, weight=weight, k=k, filters=filters, rerank=rerank, rerank_depth=rerank_depth)
-    except ValueError as exc:
-        raise SearchError(str(exc)) from None
-    notes = list(query.notes)
-    if cat_index.unindexed:
-        notes.append(f"{len(cat_index.unindexed)} material(s) without current records are not searched; "
-                     "run `olibra compute all`")
-    candidates = []
-    for hit in hits:
-        info = cat_index.materials[hit.id]
-        explanation = explain_pair(catalogue, query, info, cat_index) if explain else None
-        candidates.append(Candidate(info, hit.rank, hit.score, dict(hit.scores), dict(hit.ranks), explanation))
-    return SearchOutcome(query, metric, weight, candidates, notes)
+    return substitutes_for(catalogue, query, metric=metric, weight=weight, k=k, filters=filters,
+                           rerank_depth=rerank_depth, explain=explain, cat_index=cat_index)
 
 
 # ---------------------------------------------------------------- pairs
@@ -624,3 +606,126 @@ def overlay_recall_benchmark(catalogue: Catalogue, *, queries: int = 20, k: int 
         f"{figures['exhaustive_s_per_query'] * 1000:.0f} ms per query exhaustive -> "
         f"{figures['speedup']:.1f}x faster")
     return figures
+
+
+# ---------------------------------------------------------------- for the web pages (charts and forms)
+
+
+@dataclass(frozen=True)
+class SpectrumProfile:
+    """A material's smoothed harmonic spectrum for drawing: curve on a fixed grid plus its main bands.
+
+    grid_cm1: wavenumbers (cm^-1), 0-4000 in 5 cm^-1 steps; curve: band density scaled to a largest
+    value of 1 (sigma 10 cm^-1, population-weighted, the same curve the EVA fingerprint uses);
+    bands: main bands (position in cm^-1, height relative to the tallest), tallest first.
+    """
+
+    material_id: int
+    name: str
+    engine: str
+    grid_cm1: np.ndarray
+    curve: np.ndarray
+    bands: tuple
+
+
+def spectrum_profile(catalogue: Catalogue, key: str, *, vibration_engine: str = "mmff",
+                     bands: int = 12) -> SpectrumProfile:
+    """The drawable spectrum of a stored material (SearchError when it has no vibration record)."""
+    from library.vibration import spectrum as spectrum_module
+
+    stamp = _stamps(vibration_engine)["vibration"]
+    with catalogue.reading() as session:
+        material = curation.find_material(session, key)
+        material_id, name = material.id, material.preferred_name
+    name, spectrum = material_spectrum(catalogue, str(material_id), vibration_engine=vibration_engine)
+    grid = spectrum_module.grid_cm1()
+    curve = spectrum_module.fingerprint(spectrum, normalization="max")
+    return SpectrumProfile(material_id, name, stamp.engine_name, grid, curve,
+                           spectrum_module.main_bands(spectrum, bands))
+
+
+def fingerprint_curve(cat_index: CatalogueIndex, material_id: int | None = None,
+                      query: QueryMaterial | None = None) -> tuple[np.ndarray, np.ndarray] | None:
+    """(grid in cm^-1, curve scaled to a maximum of 1) of an indexed material's fingerprint, or of a
+    query computed on the fly; None when neither is available. Cheap: read from the index in memory."""
+    from library.vibration import spectrum as spectrum_module
+
+    if query is not None and query.material_id is None:
+        values = query.fingerprint
+    elif (material_id if query is None else query.material_id) in cat_index.materials:
+        row = cat_index.index.row_of(material_id if query is None else query.material_id)
+        values = cat_index.index.fingerprints_[row]
+    else:
+        return None
+    values = np.asarray(values, dtype=np.float64)
+    grid = spectrum_module.grid_cm1()
+    if values.shape != grid.shape or values.max(initial=0.0) <= 0:
+        return None
+    return grid, values / values.max()
+
+
+def observation_set_names(catalogue: Catalogue) -> list[str]:
+    """Names of the stored observation data sets, alphabetically."""
+    from library.catalogue.models import ObservationSet
+
+    with catalogue.reading() as session:
+        return list(session.scalars(select(ObservationSet.name).order_by(ObservationSet.name)))
+
+
+def material_keys(catalogue: Catalogue) -> dict[str, frozenset[int]]:
+    """Every key `curation.find_material` accepts, mapped to the material ids it names, read in two queries:
+    lower-cased names and synonyms, CAS RNs as written, InChIKeys upper-cased, ids as '12' and '#12'.
+    For answering many look-ups fast (a web server's type-ahead and queries); rebuild it after a change."""
+    from library.catalogue.models import Synonym
+
+    keys: dict[str, set[int]] = {}
+    with catalogue.reading() as session:
+        for material_id, name, cas_rn, inchikey in session.execute(
+                select(Material.id, Material.preferred_name, Material.cas_rn, Material.inchikey)):
+            for key in (name.lower(), cas_rn, inchikey.upper(), str(material_id), f"#{material_id}"):
+                if key:
+                    keys.setdefault(key, set()).add(material_id)
+        for material_id, name in session.execute(select(Synonym.material_id, Synonym.name)):
+            keys.setdefault(name.lower(), set()).add(material_id)
+    return {key: frozenset(ids) for key, ids in keys.items()}
+
+
+def indexed_query(cat_index: CatalogueIndex, material_id: int) -> QueryMaterial:
+    """The query for an indexed catalogue material, without reading the catalogue."""
+    info = cat_index.materials.get(material_id)
+    if info is None:
+        raise SearchError(f"material #{material_id} has no current shape and vibration records; "
+                          "run `olibra compute all` first")
+    return QueryMaterial(info.name, info.smiles, info.id)
+
+
+def substitutes_for(catalogue: Catalogue, query: QueryMaterial, *, metric: str = "blend", weight: float = 0.5,
+                    k: int = 10, filters: SearchFilter | None = None, rerank_depth: int = DEFAULT_RERANK_DEPTH,
+                    explain: bool = False, cat_index: CatalogueIndex) -> SearchOutcome:
+    """`find_substitutes` for a query already resolved (`resolve_query` or `indexed_query`)."""
+    if metric not in METRICS:
+        raise SearchError(f"metric {metric!r} is not one of {', '.join(METRICS)}")
+    if not 0.0 <= weight <= 1.0:
+        raise SearchError(f"blend weight {weight} is outside 0-1")
+    if k < 1:
+        raise SearchError("k must be at least 1")
+    filters = filters or build_filter()
+    rerank = overlay_scorer(catalogue, cat_index, query) if metric == "shape" and rerank_depth > 0 else None
+    try:
+        hits = cat_index.index.query(
+            query_id=query.material_id if query.material_id is not None else -1,
+            shape=query.shape_vector, fingerprint=query.fingerprint,
+            structure=None if query.material_id is not None else query.smiles,
+            metric=metric, weight=weight, k=k, filters=filters, rerank=rerank, rerank_depth=rerank_depth)
+    except ValueError as exc:
+        raise SearchError(str(exc)) from None
+    notes = list(query.notes)
+    if cat_index.unindexed:
+        notes.append(f"{len(cat_index.unindexed)} material(s) without current records are not searched; "
+                     "run `olibra compute all`")
+    candidates = []
+    for hit in hits:
+        info = cat_index.materials[hit.id]
+        explanation = explain_pair(catalogue, query, info, cat_index) if explain else None
+        candidates.append(Candidate(info, hit.rank, hit.score, dict(hit.scores), dict(hit.ranks), explanation))
+    return SearchOutcome(query, metric, weight, candidates, notes)

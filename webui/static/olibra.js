@@ -1,4 +1,5 @@
-// olibra's small scripts: type-ahead filtering of the catalogue and job progress polling.
+// olibra's small scripts: type-ahead filtering of the catalogue, job progress polling, material
+// suggestions on the search pages and the blend weight read-out.
 (function () {
   "use strict";
 
@@ -51,7 +52,76 @@
     if (panel.dataset.state === "queued" || panel.dataset.state === "running") poll();
   }
 
+  // A material field that suggests catalogue materials as you type (name, synonym, CAS RN, InChIKey).
+  function materialPicker(box) {
+    var input = box.querySelector("input");
+    var list = box.querySelector(".suggestions");
+    var timer = null, sequence = 0, active = -1;
+    function hide() { list.hidden = true; list.innerHTML = ""; active = -1; }
+    function choose(value) { input.value = value; hide(); input.focus(); }
+    function show(materials) {
+      list.innerHTML = "";
+      materials.forEach(function (m) {
+        var item = document.createElement("li");
+        item.setAttribute("role", "option");
+        var button = document.createElement("button");
+        button.type = "button";
+        button.className = "suggestion";
+        button.dataset.value = m.name;
+        var name = document.createElement("span");
+        name.textContent = m.name;
+        button.appendChild(name);
+        var extra = [m.cas, m.synonyms.join(", ")].filter(Boolean).join(" · ");
+        if (extra) {
+          var small = document.createElement("small");
+          small.textContent = extra;
+          button.appendChild(small);
+        }
+        button.addEventListener("mousedown", function (event) { event.preventDefault(); });
+        button.addEventListener("click", function () { choose(m.name); });
+        item.appendChild(button);
+        list.appendChild(item);
+      });
+      list.hidden = materials.length === 0;
+      active = -1;
+    }
+    function refresh() {
+      var text = input.value.trim();
+      if (text.length < 2) { hide(); return; }
+      var mine = ++sequence;
+      fetch(box.dataset.suggest + "?q=" + encodeURIComponent(text), {credentials: "same-origin"})
+        .then(function (r) { return r.ok ? r.json() : Promise.reject(r.status); })
+        .then(function (data) { if (mine === sequence) show(data.materials); })
+        .catch(hide);
+    }
+    input.addEventListener("input", function () { clearTimeout(timer); timer = setTimeout(refresh, 150); });
+    input.addEventListener("blur", function () { setTimeout(hide, 100); });
+    input.addEventListener("keydown", function (event) {
+      var buttons = list.querySelectorAll("button");
+      if (list.hidden || !buttons.length) return;
+      if (event.key === "ArrowDown" || event.key === "ArrowUp") {
+        event.preventDefault();
+        active = (active + (event.key === "ArrowDown" ? 1 : buttons.length - 1)) % buttons.length;
+        buttons.forEach(function (b, i) { b.classList.toggle("active", i === active); });
+      } else if (event.key === "Enter" && active >= 0) {
+        event.preventDefault();
+        choose(buttons[active].dataset.value);
+      } else if (event.key === "Escape") {
+        hide();
+      }
+    });
+  }
+
+  function weightReadout(slider) {
+    var output = document.getElementById("weight-value");
+    if (!output) return;
+    slider.addEventListener("input", function () { output.textContent = Number(slider.value).toFixed(2); });
+  }
+
   document.addEventListener("DOMContentLoaded", function () {
+    document.querySelectorAll(".picker[data-suggest]").forEach(materialPicker);
+    var weight = document.querySelector("input[type=range]#weight");
+    if (weight) weightReadout(weight);
     document.querySelectorAll("form[data-typeahead]").forEach(typeahead);
     var job = document.getElementById("job");
     if (job) followJob(job);

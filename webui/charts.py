@@ -1,0 +1,214 @@
+"""Small hand-written SVG charts for the pages: spectra (single, mirrored, previews), the NPR shape
+triangle and the scorecard. Numbers in, escaped SVG markup out; colors come from olibra.css classes
+(the pages' Content-Security-Policy allows no inline styles), hover labels from SVG <title>.
+
+Wavenumber axes run from 4000 cm^-1 on the left down to 0 on the right, as spectroscopists draw them.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from markupsafe import Markup, escape
+
+MAX_CM1 = 4000.0
+TICKS_CM1 = (4000, 3500, 3000, 2500, 2000, 1500, 1000, 500, 0)
+
+
+def _points(xs, ys) -> str:
+    return " ".join(f"{x:.1f},{y:.1f}" for x, y in zip(xs, ys))
+
+
+def _reduce(grid: np.ndarray, curve: np.ndarray, points: int) -> tuple[np.ndarray, np.ndarray]:
+    """At most `points` samples, keeping each window's largest value so that narrow bands survive."""
+    grid, curve = np.asarray(grid, float), np.asarray(curve, float)
+    if len(grid) <= points:
+        return grid, curve
+    window = int(np.ceil(len(grid) / points))
+    usable = len(grid) // window * window
+    g = grid[:usable].reshape(-1, window).mean(axis=1)
+    c = curve[:usable].reshape(-1, window).max(axis=1)
+    return g, c
+
+
+def _x(cm1, left: float, width: float) -> float:
+    return left + (MAX_CM1 - float(cm1)) / MAX_CM1 * width
+
+
+def _axis(left, width, y, *, labels: bool = True) -> list[str]:
+    parts = [f'<line class="axis" x1="{left}" y1="{y}" x2="{left + width}" y2="{y}"/>']
+    for tick in TICKS_CM1:
+        x = _x(tick, left, width)
+        parts.append(f'<line class="axis" x1="{x:.1f}" y1="{y}" x2="{x:.1f}" y2="{y + 4}"/>')
+        if labels:
+            parts.append(f'<text class="tick" x="{x:.1f}" y="{y + 16}" text-anchor="middle">{tick}</text>')
+    if labels:
+        parts.append(f'<text class="axis-label" x="{left + width / 2}" y="{y + 32}" text-anchor="middle">'
+                     'wavenumber / cm⁻¹</text>')
+    return parts
+
+
+def _band_title(band, extra: str = "") -> str:
+    return escape(f"{band.position_cm1:.0f} cm⁻¹, relative height {band.relative_height:.2f}{extra}")
+
+
+def spectrum_svg(profile, *, width: int = 760, height: int = 230, labelled: int = 6) -> Markup:
+    """One material's smoothed spectrum with its main bands marked; hovering a band names it."""
+    left, right, top, bottom = 20, 20, 26, 44
+    plot_w, plot_h = width - left - right, height - top - bottom
+    base = top + plot_h
+    grid, curve = _reduce(profile.grid_cm1, profile.curve, 400)
+    xs = [_x(g, left, plot_w) for g in grid]
+    ys = [base - c * plot_h for c in curve]
+    parts = [f'<svg class="chart spectrum" viewBox="0 0 {width} {height}" width="{width}" height="{height}" '
+             f'role="img" aria-label="{escape(profile.name)}: harmonic spectrum with main bands">',
+             f'<title>{escape(profile.name)}: harmonic spectrum ({escape(profile.engine)})</title>',
+             f'<polyline class="curve curve-a" points="{_points(xs, ys)}"/>']
+    parts += _axis(left, plot_w, base)
+    for number, band in enumerate(profile.bands):
+        x = _x(band.position_cm1, left, plot_w)
+        y = base - band.relative_height * plot_h
+        parts.append(f'<g class="band"><title>{_band_title(band)}</title>'
+                     f'<line class="band-line" x1="{x:.1f}" y1="{base}" x2="{x:.1f}" y2="{y:.1f}"/>'
+                     f'<circle class="band-dot" cx="{x:.1f}" cy="{y:.1f}" r="4"/>')
+        if number < labelled:
+            parts.append(f'<text class="band-label" x="{x:.1f}" y="{y - 7:.1f}" text-anchor="middle">'
+                         f'{band.position_cm1:.0f}</text>')
+        parts.append("</g>")
+    parts.append("</svg>")
+    return Markup("".join(parts))
+
+
+def mirrored_spectra_svg(profile_a, profile_b, bands, *, width: int = 900, height: int = 340) -> Markup:
+    """A's spectrum above the axis, B's mirrored below; matched main bands joined and colored as
+    matched, unmatched bands colored by the material that has them. `bands` is a BandMatch."""
+    left, right, top, bottom = 20, 20, 22, 44
+    plot_w = width - left - right
+    half = (height - top - bottom) / 2
+    middle = top + half
+    parts = [f'<svg class="chart spectrum mirrored" viewBox="0 0 {width} {height}" width="{width}" '
+             f'height="{height}" role="img" aria-label="{escape(profile_a.name)} above, '
+             f'{escape(profile_b.name)} mirrored below, with matched and unmatched bands">']
+    for profile, sign, css in ((profile_a, -1.0, "curve-a"), (profile_b, 1.0, "curve-b")):
+        grid, curve = _reduce(profile.grid_cm1, profile.curve, 450)
+        xs = [_x(g, left, plot_w) for g in grid]
+        ys = [middle + sign * c * (half - 4) for c in curve]
+        parts.append(f'<polyline class="curve {css}" points="{_points(xs, ys)}"/>')
+    parts.append(f'<text class="legend legend-a" x="{left + 4}" y="{top + 4}">▲ {escape(profile_a.name)}</text>')
+    parts.append(f'<text class="legend legend-b" x="{left + 4}" y="{top + 2 * half - 4}">'
+                 f'▼ {escape(profile_b.name)}</text>')
+    for band_a, band_b in bands.pairs:
+        xa, xb = _x(band_a.position_cm1, left, plot_w), _x(band_b.position_cm1, left, plot_w)
+        ya = middle - band_a.relative_height * (half - 4)
+        yb = middle + band_b.relative_height * (half - 4)
+        title = escape(f"matched: {band_a.position_cm1:.0f} cm⁻¹ in {profile_a.name} and "
+                       f"{band_b.position_cm1:.0f} cm⁻¹ in {profile_b.name} "
+                       f"(within {bands.tolerance_cm1:g} cm⁻¹)")
+        parts.append(f'<g class="band matched"><title>{title}</title>'
+                     f'<line class="band-link" x1="{xa:.1f}" y1="{ya:.1f}" x2="{xb:.1f}" y2="{yb:.1f}"/>'
+                     f'<circle class="band-dot" cx="{xa:.1f}" cy="{ya:.1f}" r="4"/>'
+                     f'<circle class="band-dot" cx="{xb:.1f}" cy="{yb:.1f}" r="4"/></g>')
+    for unmatched, sign, name in ((bands.unmatched_a, -1.0, profile_a.name), (bands.unmatched_b, 1.0, profile_b.name)):
+        for band in unmatched:
+            x = _x(band.position_cm1, left, plot_w)
+            y = middle + sign * band.relative_height * (half - 4)
+            parts.append(f'<g class="band unmatched"><title>{_band_title(band, f", only in {name}")}</title>'
+                         f'<line class="band-line" x1="{x:.1f}" y1="{middle}" x2="{x:.1f}" y2="{y:.1f}"/>'
+                         f'<rect class="band-dot" x="{x - 4:.1f}" y="{y - 4:.1f}" width="8" height="8"/></g>')
+    parts += _axis(left, plot_w, top + 2 * half)
+    parts.append(f'<line class="axis zero" x1="{left}" y1="{middle}" x2="{left + plot_w}" y2="{middle}"/>')
+    parts.append("</svg>")
+    return Markup("".join(parts))
+
+
+PREVIEW_SIZE = (180, 44)
+
+
+def preview_points(grid, curve) -> str:
+    """Polyline points of a spectrum preview (for `preview_svg`; cheap to keep per material)."""
+    width, height = PREVIEW_SIZE
+    grid, values = _reduce(grid, curve, 120)
+    xs = 2 + (MAX_CM1 - grid) / MAX_CM1 * (width - 4)
+    ys = height - 2 - values * (height - 6)
+    return _points(xs, ys)
+
+
+def preview_svg(points: str | None, reference: str | None = None, *, label: str = "") -> Markup:
+    """A small spectrum preview: a candidate's curve (points from `preview_points`) over the query's in gray."""
+    if points is None:
+        return Markup('<span class="empty">no spectrum</span>')
+    width, height = PREVIEW_SIZE
+    parts = [f'<svg class="chart preview" viewBox="0 0 {width} {height}" width="{width}" height="{height}" '
+             f'role="img" aria-label="{escape(label)}"><title>{escape(label)}</title>']
+    if reference is not None:
+        parts.append(f'<polyline class="curve curve-query" points="{reference}"/>')
+    parts.append(f'<polyline class="curve curve-a" points="{points}"/></svg>')
+    return Markup("".join(parts))
+
+
+def npr_triangle_svg(npr1: float, npr2: float, *, name: str = "", size: int = 220) -> Markup:
+    """The normalized PMI ratio triangle (rod, disc, sphere corners) with the material's position."""
+    pad = 30
+    span = size - 2 * pad
+
+    def point(x, y):  # NPR1 on the horizontal axis 0-1, NPR2 on the vertical axis 0.5-1
+        return pad + x * span, pad + (1.0 - y) / 0.5 * span
+
+    rod, disc, sphere = point(0, 1), point(0.5, 0.5), point(1, 1)
+    px, py = point(min(max(npr1, 0.0), 1.0), min(max(npr2, 0.5), 1.0))
+    title = escape(f"{name}: NPR1 {npr1:.3f}, NPR2 {npr2:.3f}")
+    return Markup(
+        f'<svg class="chart npr" viewBox="0 0 {size} {size}" width="{size}" height="{size}" role="img" '
+        f'aria-label="{title}"><polygon class="triangle" points="{_points(*zip(rod, disc, sphere))}"/>'
+        f'<text class="tick" x="{rod[0]}" y="{rod[1] - 8}" text-anchor="start">rod</text>'
+        f'<text class="tick" x="{sphere[0]}" y="{sphere[1] - 8}" text-anchor="end">sphere</text>'
+        f'<text class="tick" x="{disc[0]}" y="{disc[1] + 16}" text-anchor="middle">disc</text>'
+        f'<text class="axis-label" x="{size / 2}" y="{size - 4}" text-anchor="middle">NPR1</text>'
+        f'<g class="band"><title>{title}</title><circle class="npr-point" cx="{px:.1f}" cy="{py:.1f}" r="6"/></g>'
+        "</svg>")
+
+
+def scorecard_svg(scores, *, width: int = 760) -> Markup:
+    """Per metric: Spearman correlation with its bootstrap interval (left panel, -1 to 1) and
+    precision at k (right panel, 0 to 1); hovering a mark gives the figures and the Mantel p."""
+    row_h, top, label_w, gap = 34, 30, 90, 40
+    panel_w = (width - label_w - gap - 20) / 2
+    height = top + row_h * len(scores) + 30
+    left_a, left_b = label_w, label_w + panel_w + gap
+
+    def xa(v):
+        return left_a + (max(-1.0, min(1.0, v)) + 1.0) / 2.0 * panel_w
+
+    def xb(v):
+        return left_b + max(0.0, min(1.0, v)) * panel_w
+
+    parts = [f'<svg class="chart scorecard" viewBox="0 0 {width} {height}" width="{width}" height="{height}" '
+             'role="img" aria-label="Spearman correlation with bootstrap interval and precision at k per metric">',
+             f'<text class="axis-label" x="{left_a + panel_w / 2}" y="14" text-anchor="middle">'
+             'Spearman correlation with observed similarity</text>',
+             f'<text class="axis-label" x="{left_b + panel_w / 2}" y="14" text-anchor="middle">'
+             f'precision at {scores[0].k if scores else 5}</text>']
+    bottom = top + row_h * len(scores)
+    for v in (-1.0, -0.5, 0.0, 0.5, 1.0):
+        parts.append(f'<line class="gridline{" zero" if v == 0 else ""}" x1="{xa(v):.1f}" y1="{top - 6}" '
+                     f'x2="{xa(v):.1f}" y2="{bottom}"/>'
+                     f'<text class="tick" x="{xa(v):.1f}" y="{bottom + 16}" text-anchor="middle">{v:g}</text>')
+    for v in (0.0, 0.5, 1.0):
+        parts.append(f'<line class="gridline" x1="{xb(v):.1f}" y1="{top - 6}" x2="{xb(v):.1f}" y2="{bottom}"/>'
+                     f'<text class="tick" x="{xb(v):.1f}" y="{bottom + 16}" text-anchor="middle">{v:g}</text>')
+    for i, s in enumerate(scores):
+        y = top + row_h * i + row_h / 2
+        significant = " significant" if s.mantel_p <= 0.05 else ""
+        title = escape(f"{s.metric}: Spearman {s.spearman:.3f} ({int(s.confidence * 100)} % interval "
+                       f"{s.ci_low:.3f} to {s.ci_high:.3f}), Mantel p {s.mantel_p:.4f} "
+                       f"({s.permutations} permutations), {s.pairs} pairs")
+        parts.append(f'<text class="metric-label" x="{label_w - 10}" y="{y + 4:.1f}" text-anchor="end">'
+                     f'{escape(s.metric)}</text>')
+        parts.append(f'<g class="band{significant}"><title>{title}</title>'
+                     f'<line class="whisker" x1="{xa(s.ci_low):.1f}" y1="{y:.1f}" x2="{xa(s.ci_high):.1f}" y2="{y:.1f}"/>'
+                     f'<circle class="estimate" cx="{xa(s.spearman):.1f}" cy="{y:.1f}" r="5"/></g>')
+        if s.precision_at_k is not None and np.isfinite(s.precision_at_k):
+            bar_title = escape(f"{s.metric}: precision at {s.k} {s.precision_at_k:.3f}")
+            parts.append(f'<g class="band"><title>{bar_title}</title><rect class="bar" x="{left_b}" '
+                         f'y="{y - 8:.1f}" width="{xb(s.precision_at_k) - left_b:.1f}" height="16"/></g>')
+    parts.append("</svg>")
+    return Markup("".join(parts))

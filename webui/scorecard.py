@@ -1,0 +1,31 @@
+"""The scorecard page: how well each metric predicts observed similarity, side by side."""
+
+from __future__ import annotations
+
+from flask import Blueprint, render_template, request
+
+from library.errors import OlibraError
+from webui import charts, explore
+
+blueprint = Blueprint("scorecard", __name__)
+
+
+@blueprint.get("/scorecard")
+def index():
+    error = scores = label = chart = None
+    notes: list[str] = []
+    sources = []
+    try:
+        sources = explore.observation_sources()
+        asked = explore.scorecard_request(request.args)
+    except OlibraError as exc:
+        asked, error = explore.ScorecardRequest(), str(exc)
+    if error is None and explore.flag_argument(request.args, "run"):
+        try:
+            scores, label, notes = explore.run_scorecard(asked)
+            chart = charts.scorecard_svg(scores)
+        except OlibraError as exc:
+            error = str(exc)
+    return render_template("scorecard/index.html", asked=asked, scores=scores, label=label, notes=notes,
+                           chart=chart, error=error, sources=sources,
+                           defaults=explore.SCORECARD_DEFAULTS), 400 if error else 200
