@@ -5,8 +5,9 @@ from __future__ import annotations
 from flask import Blueprint, Response, abort, current_app, render_template, request
 from sqlalchemy.orm import selectinload
 
+from library import depiction
 from library.catalogue.models import Material, MaterialOdor
-from webui import db_session, depiction, queries
+from webui import db_session, queries
 
 blueprint = Blueprint("browse", __name__)
 

@@ -11,11 +11,17 @@ from sqlalchemy.orm import selectinload
 from werkzeug.utils import secure_filename
 
 from library.catalogue import curation, transfer
+from library.catalogue.edits import MaterialChanges, apply_changes, odor_text
 from library.catalogue.models import Material, MaterialOdor
 from library.errors import OlibraError
 from webui import db_session, queries, write_transaction
-from webui.edits import MaterialChanges, apply_changes, odor_text
-from webui.forms import EditMaterialForm, ImportForm, MaterialForm, VocabularyForm, split_lines
+from webui.forms import (
+    EditMaterialForm,
+    ImportForm,
+    MaterialForm,
+    VocabularyForm,
+    split_lines,
+)
 
 blueprint = Blueprint("curation", __name__)
 

@@ -5,10 +5,11 @@ from __future__ import annotations
 
 from flask import Blueprint, Response, render_template, request
 
+from library import depiction
 from library.errors import OlibraError
 from library.search import service
 from library.search.index import METRICS
-from webui import charts, depiction, explore
+from webui import charts, explore
 
 blueprint = Blueprint("substitutes", __name__)
 

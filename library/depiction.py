@@ -1,4 +1,4 @@
-"""2D depictions of stored structures as SVG (RDKit's rdMolDraw2D), for the material pages."""
+"""2D depictions of structures as SVG (RDKit's rdMolDraw2D), for the web pages and reports."""
 
 from __future__ import annotations
 
