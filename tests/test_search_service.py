@@ -216,5 +216,9 @@ def test_search_commands_end_to_end(searchable, capsys, monkeypatch, tmp_path):
     target = tmp_path / "spectrum.svg"
     code, out, _ = run("spectrum", "Benzaldehyde", "--against", "Benzaldehyde-d6", "--out", str(target))
     assert code == 0 and target.read_text().lstrip().startswith(("<?xml", "<svg"))
+    code, out, _ = run("search", "CCCCCCCCC#N", "--store-as", "Nonanenitrile", "-k", "2")
+    assert code == 0 and "added #" in out and "substitutes for Nonanenitrile" in out
+    code, out, _ = run("show", "Nonanenitrile")
+    assert "vibration" in out and "shape" in out
     code, _, err = run("search", "no such material and no SMILES (", "-k", "2")
     assert code == 2 and "no material matches" in err and "Traceback" not in err

@@ -22,8 +22,29 @@ def _range(values):
     return None if values is None else (values[0], values[1])
 
 
+def store_query(catalogue, args) -> str:
+    """Add the query structure to the catalogue with its records; returns the key to search by."""
+    from library import computations
+    from library.catalogue import jobs
+
+    draft = curation.draft_material(args.query, name=args.store_as,
+                                    sources={"structure": args.source, "preferred_name": args.source})
+    with catalogue.transaction() as session:
+        outcome = curation.add_material(session, draft)
+    print(outcome.message)
+    plan = computations.Plan(vibration_engine=args.engine)
+    stamps = computations.stamps(plan)
+    report = jobs.run(catalogue, stamps, computations.worker(plan),
+                      jobs.select_materials(catalogue, stamps, keys=[str(outcome.material.id)]), processes=1)
+    if report.failures:
+        raise OlibraError(f"the structure was stored but its records failed: {report.failures[0][2]}")
+    return str(outcome.material.id)
+
+
 def cmd_search(args) -> int:
     catalogue = open_catalogue(args)
+    if args.store_as:
+        args.query = store_query(catalogue, args)
     filters = service.build_filter(
         mw_range=_range(args.mw), logp_range=_range(args.logp), must_have=args.with_odor or (),
         must_not_have=args.without_odor or (), include_retired=args.include_retired,
@@ -242,6 +263,9 @@ def register(commands) -> None:
     p.add_argument("--rerank-depth", type=int, default=service.DEFAULT_RERANK_DEPTH,
                    help="shape metric: re-rank this many top candidates by Gaussian overlay (0: off)")
     p.add_argument("--explain", action="store_true", help="add volume ratio and band matching per candidate")
+    p.add_argument("--store-as", metavar="NAME",
+                   help="a new structure is added to the catalogue under NAME (with its records) before the search")
+    p.add_argument("--source", default="from memory", help="with --store-as: provenance of the structure")
     _add_common(p)
     p.set_defaults(handler=cmd_search)
 

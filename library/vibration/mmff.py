@@ -93,7 +93,8 @@ class ForceFieldModel:
             elements = sorted({a.GetSymbol() for a in self.mol.GetAtoms()})
             raise MissingParametersError(
                 f"{variant} has no parameters for this material ({Chem.MolToSmiles(Chem.RemoveHs(self.mol))}; "
-                f"elements {', '.join(elements)}); compute its vibrations with engine='gfn2' instead")
+                f"elements {', '.join(elements)}); compute its vibrations with the gfn2 engine instead "
+                "(olibra compute vibration --engine gfn2)")
         # ignoreInterfragInteractions=False: a multi-fragment entry stays one system.
         self.field = rdForceFieldHelpers.MMFFGetMoleculeForceField(
             self.mol, properties, confId=0, ignoreInterfragInteractions=False)
@@ -222,7 +223,7 @@ def vibrations(mol: Chem.Mol, *, conf_id: int = -1, variant: str = "MMFF94", ste
         if reoptimizations >= max_reoptimizations:
             raise NotAMinimumError(
                 f"MMFF94 geometry keeps an imaginary mode at {most_negative:.1f} cm^-1 after "
-                f"{reoptimizations} displaced re-optimizations; check the structure or try engine='gfn2'")
+                f"{reoptimizations} displaced re-optimizations; check the structure or try the gfn2 engine (--engine gfn2)")
         reoptimizations += 1
         # Push 0.1 A (largest atom displacement) downhill along the imaginary mode and minimize again.
         direction = modes.displacements[int(np.argmin(modes.frequencies_cm1))]
