@@ -13,23 +13,24 @@ def _header(what: str, processes: int | None) -> None:
           f"{processes or os.cpu_count()} process(es), Python {platform.python_version()}")
 
 
+def _benchmark_smiles(what: str, processes: int | None) -> list[str]:
+    materials = benchmark_materials()
+    _header(what, processes)
+    print(f"benchmark set: {len(materials)} seed materials with at most 25 heavy atoms")
+    return [smiles for _, smiles in materials]
+
+
 def cmd_bench_shape(args) -> int:
     from library import shape_bench
 
-    materials = benchmark_materials()
-    _header("shape", args.processes)
-    print(f"benchmark set: {len(materials)} seed materials with at most 25 heavy atoms")
-    shape_bench.run([smiles for _, smiles in materials], processes=args.processes)
+    shape_bench.run(_benchmark_smiles("shape", args.processes), processes=args.processes)
     return 0
 
 
 def cmd_bench_vibration(args) -> int:
     from library.vibration import bench
 
-    materials = benchmark_materials()
-    _header("vibration", args.processes)
-    print(f"benchmark set: {len(materials)} seed materials with at most 25 heavy atoms")
-    bench.run([smiles for _, smiles in materials], processes=args.processes)
+    bench.run(_benchmark_smiles("vibration", args.processes), processes=args.processes)
     return 0
 
 

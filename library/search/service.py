@@ -255,17 +255,21 @@ def build_filter(*, mw_range=None, logp_range=None, must_have=(), must_not_have=
         raise SearchError(str(exc)) from None
 
 
-def find_substitutes(catalogue: Catalogue, query_text: str, *, metric: str = "blend", weight: float = 0.5,
-                     k: int = 10, filters: SearchFilter | None = None, rerank_depth: int = DEFAULT_RERANK_DEPTH,
-                     explain: bool = False, vibration_engine: str = "mmff",
-                     cat_index: CatalogueIndex | None = None) -> SearchOutcome:
-    """The k catalogue materials most similar to the query under `metric` (shape re-ranked by overlay)."""
+def _check_search(metric: str, weight: float, k: int) -> None:
     if metric not in METRICS:
         raise SearchError(f"metric {metric!r} is not one of {', '.join(METRICS)}")
     if not 0.0 <= weight <= 1.0:
         raise SearchError(f"blend weight {weight} is outside 0-1")
     if k < 1:
         raise SearchError("k must be at least 1")
+
+
+def find_substitutes(catalogue: Catalogue, query_text: str, *, metric: str = "blend", weight: float = 0.5,
+                     k: int = 10, filters: SearchFilter | None = None, rerank_depth: int = DEFAULT_RERANK_DEPTH,
+                     explain: bool = False, vibration_engine: str = "mmff",
+                     cat_index: CatalogueIndex | None = None) -> SearchOutcome:
+    """The k catalogue materials most similar to the query under `metric` (shape re-ranked by overlay)."""
+    _check_search(metric, weight, k)
     cat_index = cat_index or load_index(catalogue, vibration_engine=vibration_engine)
     query = resolve_query(catalogue, query_text, cat_index)
     return substitutes_for(catalogue, query, metric=metric, weight=weight, k=k, filters=filters,
@@ -703,12 +707,7 @@ def substitutes_for(catalogue: Catalogue, query: QueryMaterial, *, metric: str =
                     k: int = 10, filters: SearchFilter | None = None, rerank_depth: int = DEFAULT_RERANK_DEPTH,
                     explain: bool = False, cat_index: CatalogueIndex) -> SearchOutcome:
     """`find_substitutes` for a query already resolved (`resolve_query` or `indexed_query`)."""
-    if metric not in METRICS:
-        raise SearchError(f"metric {metric!r} is not one of {', '.join(METRICS)}")
-    if not 0.0 <= weight <= 1.0:
-        raise SearchError(f"blend weight {weight} is outside 0-1")
-    if k < 1:
-        raise SearchError("k must be at least 1")
+    _check_search(metric, weight, k)
     filters = filters or build_filter()
     rerank = overlay_scorer(catalogue, cat_index, query) if metric == "shape" and rerank_depth > 0 else None
     try:

@@ -223,7 +223,8 @@ def vibrations(mol: Chem.Mol, *, conf_id: int = -1, variant: str = "MMFF94", ste
         if reoptimizations >= max_reoptimizations:
             raise NotAMinimumError(
                 f"MMFF94 geometry keeps an imaginary mode at {most_negative:.1f} cm^-1 after "
-                f"{reoptimizations} displaced re-optimizations; check the structure or try the gfn2 engine (--engine gfn2)")
+                f"{reoptimizations} displaced re-optimizations; check the structure or try the gfn2 engine "
+                "(--engine gfn2)")
         reoptimizations += 1
         # Push 0.1 A (largest atom displacement) downhill along the imaginary mode and minimize again.
         direction = modes.displacements[int(np.argmin(modes.frequencies_cm1))]
