@@ -12,7 +12,9 @@ import multiprocessing
 import os
 import signal
 import time
+from collections import deque
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
 from typing import Callable, Iterable
 
@@ -22,6 +24,7 @@ from library.catalogue.curation import find_material
 from library.catalogue.database import Catalogue
 from library.catalogue.models import Material
 from library.catalogue.records import EngineStamp, record_state, save_record
+from library.errors import OlibraError
 
 # Worker result: for each kind, (arrays, summary); or an error message.
 WorkerResult = dict[str, tuple[dict, dict]]
@@ -110,16 +113,22 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
     context = multiprocessing.get_context("spawn")
     executor = ProcessPoolExecutor(max_workers=processes, mp_context=context, initializer=_worker_setup)
     pending: dict[Future, tuple[int, str, str]] = {}
-    queue = list(materials)
+    queue = deque(materials)
     try:
         while queue or pending:
             while queue and len(pending) < 2 * processes:
-                item = queue.pop(0)
+                item = queue.popleft()
                 pending[executor.submit(_guarded, worker, item[2])] = item
             finished, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in finished:
                 material_id, name, smiles = pending.pop(future)
-                result, error, elapsed = future.result()
+                try:
+                    result, error, elapsed = future.result()
+                except BrokenProcessPool:
+                    raise OlibraError(
+                        f"a worker process died while computing #{material_id} {name} (out of memory or an "
+                        "engine crash); finished materials were saved; rerun to resume, or skip this material "
+                        "by retiring it") from None
                 if error is not None:
                     report.failures.append((material_id, name, error))
                 elif _store(catalogue, material_id, smiles, stamps, result, elapsed):
@@ -133,6 +142,9 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
         for process in list(getattr(executor, "_processes", {}).values()):
             process.terminate()
         executor.shutdown(wait=False, cancel_futures=True)
+    except BaseException:
+        executor.shutdown(wait=False, cancel_futures=True)
+        raise
     else:
         executor.shutdown(wait=True)
     finally:
