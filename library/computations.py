@@ -18,7 +18,7 @@ from library.catalogue.records import EngineStamp
 KINDS = ("shape", "vibration")
 # What a shape record holds besides the descriptors: the ensemble itself, so
 # that overlays need no new embedding.
-SHAPE_RECORD_LAYOUT = "descriptors+conformers/1"
+SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments/2"
 VIBRATION_ENGINES = ("mmff", "gfn2")
 
 
@@ -87,14 +87,24 @@ def compute_material(plan: Plan, smiles: str) -> dict[str, tuple[dict, dict]]:
 
 
 def conformer_arrays(ens) -> dict[str, np.ndarray]:
-    """The ensemble as arrays: coordinates (A), weights, energies (kcal/mol), stereoisomer index, atoms."""
+    """The ensemble as arrays: coordinates (A), weights, energies (kcal/mol), stereoisomer index, atoms,
+    and each conformer's USR and chiral moments."""
+    from library import shape
+
     return {
+        "conformer_moments": shape.conformer_moments(ens),
         "conformer_xyz_a": np.stack([m.mol.GetConformer(0).GetPositions() for m in ens.members]),
         "conformer_weight": np.array([m.weight for m in ens.members]),
         "conformer_energy_kcal": np.array([m.energy_kcal for m in ens.members]),
         "conformer_stereoisomer": np.array([m.stereoisomer for m in ens.members]),
         "atomic_number": np.array([a.GetAtomicNum() for a in ens.members[0].mol.GetAtoms()]),
     }
+
+
+def top_conformer_moments(arrays: dict, max_members: int) -> np.ndarray:
+    """Per-conformer USR + chiral moments of the `max_members` most weighted conformers of a shape record."""
+    order = np.argsort(-arrays["conformer_weight"], kind="stable")[:max_members]
+    return np.asarray(arrays["conformer_moments"])[order]
 
 
 def ensemble_from_arrays(smiles: str, arrays: dict, *, max_members: int | None = None):

@@ -34,7 +34,9 @@ __all__ = [
     "OverlayResult",
     "ShapeDescription",
     "ShapeError",
+    "best_conformer_similarity",
     "chiral_moments",
+    "conformer_moments",
     "describe",
     "describe_smiles",
     "moment_similarity",
@@ -260,7 +262,8 @@ def shape_vector(desc: ShapeDescription) -> np.ndarray:
 # ---------------------------------------------------------------- describe
 
 
-def _conformer_descriptors(mol_h: Chem.Mol) -> dict:
+def _shape_atoms(mol_h: Chem.Mol) -> Chem.Mol:
+    """The atoms the moments are taken over: heavy atoms, or all when fewer than 3 are heavy."""
     heavy = heavy_atom_mol(mol_h)
     target = heavy if heavy.GetNumAtoms() >= 3 else mol_h
     if target.GetNumAtoms() < 3:
@@ -268,6 +271,30 @@ def _conformer_descriptors(mol_h: Chem.Mol) -> dict:
             f"shape descriptors need at least 3 atoms; {Chem.MolToSmiles(mol_h)!r} has "
             f"{target.GetNumAtoms()}"
         )
+    return target
+
+
+def conformer_moments(ens: ConformerEnsemble) -> np.ndarray:
+    """(conformers, 24) float32: USR (12) and chiral (12) moments of each conformer, in ensemble order.
+
+    The conformer-level counterpart of the ensemble-averaged vectors: the best conformer pair of
+    two materials predicts their Gaussian overlay better than the averages do.
+    """
+    rows = []
+    for member in ens.members:
+        xyz = _shape_atoms(member.mol).GetConformer(0).GetPositions()
+        rows.append(np.concatenate([usr_moments(xyz), chiral_moments(xyz)]))
+    return np.asarray(rows, dtype=np.float32)
+
+
+def best_conformer_similarity(moments_a: np.ndarray, moments_b: np.ndarray) -> float:
+    """Largest USR similarity 1/(1 + mean |a - b|) over all conformer pairs of two materials (0-1)."""
+    distance = np.abs(moments_a[:, None, :] - moments_b[None, :, :]).mean(axis=-1)
+    return float(1.0 / (1.0 + distance.min()))
+
+
+def _conformer_descriptors(mol_h: Chem.Mol) -> dict:
+    target = _shape_atoms(mol_h)
     xyz = target.GetConformer(0).GetPositions()
     lattice = rdMolDescriptors.DoubleCubicLatticeVolume(
         mol_h, isProtein=False, includeLigand=True, probeRadius=0.0

@@ -192,6 +192,24 @@ def test_rerank_callback_orders_hits(data):
         index.query(query_id=3, metric="shape", rerank=lambda q, c: [2.0] * len(c))
 
 
+def test_rerank_may_leave_candidates_unscored(data):
+    ids, shape, fingerprints = data
+    index = SimilarityIndex(pca_components=None).fit(ids, shape, fingerprints)
+    plain = index.query(query_id=3, metric="shape", k=20)
+
+    def every_other(query_id, candidate_ids):  # re-scores the even positions only, in reverse order
+        return [float("nan") if i % 2 else 1.0 - i / 100 for i in range(len(candidate_ids))]
+
+    hits = index.query(query_id=3, metric="shape", k=20, rerank=every_other, rerank_depth=20)
+    scored = [h for h in hits if "overlay" in h.scores]
+    assert [h.id for h in scored] == [plain[i].id for i in range(0, 20, 2)]
+    # the unscored follow in their moment order, with their shape score and no overlay
+    assert [h.id for h in hits[len(scored):]] == [plain[i].id for i in range(1, 20, 2)]
+    assert all(h.score == pytest.approx(h.scores["shape"]) for h in hits[len(scored):])
+    with pytest.raises(ValueError, match="at least one scored"):
+        index.query(query_id=3, metric="shape", rerank=lambda q, c: [float("nan")] * len(c))
+
+
 def test_save_load_round_trip_and_revision(tmp_path, data):
     ids, shape, fingerprints = data
     properties = {"descriptors": [{"green"} if i % 2 else set() for i in range(len(ids))]}

@@ -87,7 +87,8 @@ def print_substitutes(outcome: service.SearchOutcome, *, fmt: str = "table", exp
     emit(rows, columns, fmt)
     if fmt == "table":
         if outcome.metric == "shape" and rerank_depth:
-            print(f"(top {rerank_depth} by moments re-ranked by Gaussian overlay)")
+            print(f"(of the top {service.RERANK_POOL * rerank_depth} by moments, the {rerank_depth} with the most "
+                  "alike conformer pair are ordered by Gaussian overlay; the rest follow without it)")
         print("each cell: similarity (0-1) and, in brackets, the candidate's rank under that metric")
         for note in outcome.notes:
             print(f"note: {note}")
@@ -261,7 +262,8 @@ def register(commands) -> None:
     p.add_argument("--include-retired", action="store_true")
     p.add_argument("--include-restricted", action="store_true")
     p.add_argument("--rerank-depth", type=int, default=service.DEFAULT_RERANK_DEPTH,
-                   help="shape metric: re-rank this many top candidates by Gaussian overlay (0: off)")
+                   help="shape metric: order this many candidates by Gaussian overlay (default "
+                        f"{service.DEFAULT_RERANK_DEPTH}; 0: moments only)")
     p.add_argument("--explain", action="store_true", help="add volume ratio and band matching per candidate")
     p.add_argument("--store-as", metavar="NAME",
                    help="a new structure is added to the catalogue under NAME (with its records) before the search")

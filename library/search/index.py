@@ -645,7 +645,9 @@ class SimilarityIndex:
 
         ``rerank``: a callback ``(query_id, candidate_ids) -> scores in 0-1`` (e.g. a
         Gaussian shape overlay) applied to the best ``rerank_depth`` candidates under
-        ``metric``; hits are then ordered by its score, reported as ``"overlay"``.
+        ``metric``; hits are then ordered by its score, reported as ``"overlay"``. The
+        callback may return NaN for candidates it chose not to re-score: they follow the
+        re-scored ones in their first-stage order and carry no ``"overlay"`` score.
         """
         self._check_fitted()
         if metric not in METRICS:
@@ -735,13 +737,16 @@ class SimilarityIndex:
         if rerank is not None:
             candidate_ids = self.ids_[rows].tolist()
             overlay = np.asarray(rerank(query_id, candidate_ids), dtype=np.float64)
-            if overlay.shape != (rows.size,) or not np.isfinite(overlay).all():
+            scored = ~np.isnan(overlay)
+            if overlay.shape != (rows.size,) or np.isinf(overlay).any() or not scored.any():
                 raise ValueError(
-                    f"rerank callback must return {rows.size} finite scores, one per candidate; got shape {overlay.shape}"
+                    f"rerank callback must return {rows.size} scores, one per candidate (NaN for a candidate it "
+                    f"does not re-score, at least one scored); got shape {overlay.shape}"
                 )
-            if (overlay < 0).any() or (overlay > 1).any():
+            if (overlay[scored] < 0).any() or (overlay[scored] > 1).any():
                 raise ValueError("rerank callback must return scores in 0-1")
-            order = np.lexsort((position, -overlay))
+            # re-scored candidates first, best first; the others keep their first-stage order
+            order = np.lexsort((position, -np.where(scored, overlay, -1.0)))
             rows, overlay = rows[order], overlay[order]
             hit_scores = {name: values[order] for name, values in hit_scores.items()}
             rank_table = {name: values[order] for name, values in rank_table.items()}
@@ -756,9 +761,12 @@ class SimilarityIndex:
                     id=self.ids_[rows[i]].item(),
                     row=int(rows[i]),
                     rank=i + 1,
-                    score=float(hit_scores[ranked_by][i]),
-                    scores={name: float(values[i]) for name, values in hit_scores.items()},
-                    ranks={name: int(values[i]) for name, values in rank_table.items()},
+                    score=float(hit_scores[ranked_by][i] if not np.isnan(hit_scores[ranked_by][i])
+                                else hit_scores[metric][i]),
+                    scores={name: float(values[i]) for name, values in hit_scores.items()
+                            if not np.isnan(values[i])},
+                    ranks={name: int(values[i]) for name, values in rank_table.items()
+                           if name != "overlay" or not np.isnan(hit_scores["overlay"][i])},
                 )
             )
         return hits

@@ -77,13 +77,14 @@ class TightBindingModel:
     """
 
     def __init__(self, numbers: np.ndarray, positions_a: np.ndarray, *, charge: int = 0, unpaired: int = 0,
-                 accuracy: float = 0.01, electronic_temperature_k: float = 300.0):
+                 accuracy: float = 0.01, displaced_accuracy: float = 0.1, electronic_temperature_k: float = 300.0):
         calculator_class = _require_tblite()
         set_openmp_threads(1)
         self.numbers = np.asarray(numbers, dtype=int)
         self.charge = charge
         self.unpaired = unpaired
         self.accuracy = accuracy
+        self.displaced_accuracy = displaced_accuracy
         self.electronic_temperature_k = electronic_temperature_k
         try:
             self.calculator = calculator_class(
@@ -110,7 +111,9 @@ class TightBindingModel:
         self.calculator.update(np.asarray(positions_a, dtype=float).reshape(-1, 3) * units.ANGSTROM_TO_BOHR)
         try:
             if restart_from_reference and self.reference is not None:
+                self.calculator.set("accuracy", self.displaced_accuracy)
                 return self.calculator.singlepoint(self.reference, copy=True)
+            self.calculator.set("accuracy", self.accuracy)
             self.reference = self.calculator.singlepoint(self.reference)
             return self.reference
         except Exception as error:
@@ -132,7 +135,8 @@ class TightBindingModel:
 
     def settings(self) -> dict:
         return {"numbers": self.numbers, "charge": self.charge, "unpaired": self.unpaired,
-                "accuracy": self.accuracy, "electronic_temperature_k": self.electronic_temperature_k}
+                "accuracy": self.accuracy, "displaced_accuracy": self.displaced_accuracy,
+                "electronic_temperature_k": self.electronic_temperature_k}
 
 
 def set_openmp_threads(threads: int) -> None:
