@@ -9,7 +9,7 @@ processes, so they take and return only plain, picklable values.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from functools import partial
+from functools import lru_cache, partial
 
 import numpy as np
 
@@ -60,6 +60,21 @@ def stamps(plan: Plan) -> list[EngineStamp]:
         out.append(EngineStamp("vibration", module.ENGINE_NAME, module.ENGINE_VERSION,
                                spectrum_module.record_parameters(plan.vibration_engine,
                                                                  **plan.ensemble_knobs)))
+    return out
+
+
+@lru_cache(maxsize=1)
+def current_stamps() -> dict[tuple[str, str], EngineStamp]:
+    """The stamp each (kind, engine name) record must carry now; engines not installed are left out."""
+    out: dict[tuple[str, str], EngineStamp] = {}
+    plans = [Plan(kinds=("shape",))] + [Plan(kinds=("vibration",), vibration_engine=e) for e in VIBRATION_ENGINES]
+    for plan in plans:
+        try:
+            found = stamps(plan)
+        except (ImportError, ValueError):
+            continue  # that engine is not available in this installation
+        for stamp in found:
+            out[(stamp.kind, stamp.engine_name)] = stamp
     return out
 
 

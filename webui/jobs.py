@@ -6,6 +6,7 @@ from flask import Blueprint, abort, current_app, flash, redirect, render_templat
 from flask_login import current_user
 from sqlalchemy import select
 
+from library import computations
 from library.catalogue.models import BackgroundJob
 from library.catalogue.records import record_state
 from library.errors import OlibraError
@@ -19,7 +20,7 @@ def record_counts() -> list[dict]:
     """Current, stale and missing record counts per kind and engine available here."""
     session = db_session()
     rows = []
-    for (kind, engine_name), stamp in sorted(queries.current_stamps().items()):
+    for (kind, engine_name), stamp in sorted(computations.current_stamps().items()):
         states = list(record_state(session, stamp).values())
         rows.append({"kind": kind, "engine": engine_name, "current": states.count("current"),
                      "stale": states.count("stale"), "missing": states.count("missing")})

@@ -8,11 +8,11 @@ from __future__ import annotations
 import json
 import math
 from dataclasses import dataclass
-from functools import lru_cache
 
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, selectinload
 
+from library import computations
 from library.catalogue import records as records_module
 from library.catalogue.models import (
     COMPUTED_KINDS,
@@ -25,7 +25,6 @@ from library.catalogue.models import (
     PairFlag,
     Synonym,
 )
-from library.catalogue.records import EngineStamp
 from library.errors import OlibraError
 
 MAX_QUERY_CHARS = 200
@@ -98,24 +97,6 @@ def parse_page_arguments(args) -> tuple[str, int, bool]:
     return args.get("q", ""), int(text), args.get("retired", "") in ("1", "on", "true", "yes")
 
 
-@lru_cache(maxsize=1)
-def current_stamps() -> dict[tuple[str, str], EngineStamp]:
-    """The stamp each (kind, engine name) record must carry now; engines not installed are left out."""
-    from library import computations
-
-    out: dict[tuple[str, str], EngineStamp] = {}
-    plans = [computations.Plan(kinds=("shape",))]
-    plans += [computations.Plan(kinds=("vibration",), vibration_engine=e) for e in computations.VIBRATION_ENGINES]
-    for plan in plans:
-        try:
-            stamps = computations.stamps(plan)
-        except (ImportError, ValueError, OlibraError):
-            continue  # that engine is not available in this installation
-        for stamp in stamps:
-            out[(stamp.kind, stamp.engine_name)] = stamp
-    return out
-
-
 @dataclass(frozen=True)
 class RecordView:
     kind: str
@@ -128,7 +109,7 @@ class RecordView:
 
 
 def record_views(session: Session, material: Material) -> list[RecordView]:
-    stamps = current_stamps()
+    stamps = computations.current_stamps()
     views = []
     for record in session.scalars(select(ComputedRecord).where(ComputedRecord.material_id == material.id)
                                   .order_by(ComputedRecord.kind, ComputedRecord.engine_name)):

@@ -9,6 +9,7 @@ from pathlib import Path
 from sqlalchemy import func, select
 from sqlalchemy.orm import selectinload
 
+from library import computations
 from library.catalogue import curation, records, transfer
 from library.catalogue.database import Catalogue, describe_url, initialize, resolve_url
 from library.catalogue.models import AuditEntry, ComputedRecord, Material, MaterialOdor, OdorDescriptor, PairFlag
@@ -81,12 +82,14 @@ def cmd_show(args) -> int:
             lines.append(f"  source of {p.field:<14}{_provenance_text(p.kind, p.reference)}")
         if m.notes:
             lines.append(f"  notes           {m.notes}")
-        records = session.scalars(select(ComputedRecord).where(ComputedRecord.material_id == m.id)
-                                  .order_by(ComputedRecord.kind)).all()
-        for record in records:
-            fresh = record.structure_inchikey == m.inchikey and record.engine_version in current_versions()
+        stamps = computations.current_stamps()
+        for record in session.scalars(select(ComputedRecord).where(ComputedRecord.material_id == m.id)
+                                      .order_by(ComputedRecord.kind, ComputedRecord.engine_name)):
+            stamp = stamps.get((record.kind, record.engine_name))
+            state = ("  [engine not installed]" if stamp is None
+                     else "" if records.is_current(record, stamp, m.inchikey) else "  [stale: run olibra compute]")
             lines.append(f"  {record.kind:<15} {record.engine_name} {record.engine_version} "
-                         f"(computed {record.computed_at:%Y-%m-%d %H:%M})" + ("" if fresh else "  [stale]"))
+                         f"(computed {record.computed_at:%Y-%m-%d %H:%M})" + state)
             lines.extend(f"    {line}" for line in summary_lines(json.loads(record.summary_json or "{}")))
         flags = session.scalars(select(PairFlag).where(
             (PairFlag.material_a_id == m.id) | (PairFlag.material_b_id == m.id))).all()
@@ -102,15 +105,6 @@ def cmd_show(args) -> int:
                 lines.append(f"  history         {e.at:%Y-%m-%d %H:%M} {e.actor} {e.action} {change}")
     print("\n".join(lines))
     return 0
-
-
-def current_versions() -> set[str]:
-    from library import computations
-
-    versions = set()
-    for engine in computations.VIBRATION_ENGINES:
-        versions |= {s.engine_version for s in computations.stamps(computations.Plan(vibration_engine=engine))}
-    return versions
 
 
 def summary_lines(summary: dict) -> list[str]:

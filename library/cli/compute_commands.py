@@ -43,15 +43,10 @@ def cmd_status(args) -> int:
     catalogue = open_catalogue(args)
     rows = []
     with catalogue.reading() as session:
-        for engine in ("mmff", "gfn2"):
-            plan = computations.Plan(kinds=computations.KINDS, vibration_engine=engine)
-            for stamp in computations.stamps(plan):
-                if stamp.kind == "shape" and engine != "mmff":
-                    continue
-                states = list(record_state(session, stamp).values())
-                rows.append({"kind": stamp.kind, "engine": stamp.engine_name,
-                             "current": states.count("current"), "stale": states.count("stale"),
-                             "missing": states.count("missing")})
+        for (kind, engine_name), stamp in sorted(computations.current_stamps().items()):
+            states = list(record_state(session, stamp).values())
+            rows.append({"kind": kind, "engine": engine_name, "current": states.count("current"),
+                         "stale": states.count("stale"), "missing": states.count("missing")})
     emit(rows, ["kind", "engine", "current", "stale", "missing"], args.format)
     return 0
 
