@@ -4,7 +4,10 @@ Figures: materials per second per engine over a list (default conformer
 ensembles, all cores, ensembles included), and seconds per single-conformer
 GFN2-xTB Hessian of a 19-heavy-atom musk (HHCB, C18H26O), ours against
 ASE's ase.vibrations.Vibrations driving tblite's ASE calculator with the same
-settings, timed in the same run.
+settings (its every point at the reference SCC accuracy; ours restart
+displaced points from the converged reference at `displaced_accuracy`),
+timed in the same run. The load average is printed beside the timings,
+since another process on the machine changes them.
 
 Run: python -m library.vibration.bench  (uses the fixed benchmark set)
 """
@@ -97,7 +100,8 @@ def _hessian_timings(say) -> dict:
         ours[processes] = analyze(hessian, positions, masses).frequencies_cm1
         figures[f"olibra_hessian_s_{processes}proc"] = elapsed
         say(f"[gfn2] olibra Hessian + dipole derivatives ({6 * mol.GetNumAtoms()} single points, "
-            f"{processes} process(es)): {elapsed:.2f} s")
+            f"{processes} process(es), SCC accuracy {model.accuracy} reference / {model.displaced_accuracy} "
+            f"displaced): {elapsed:.2f} s (load average {os.getloadavg()[0]:.2f})")
 
     try:
         from ase import Atoms
@@ -126,7 +130,8 @@ def _hessian_timings(say) -> dict:
     figures["speedup_vs_ase"] = ase_s / best
     figures["max_frequency_difference_vs_ase_cm1"] = float(np.abs(np.sort(ours[1]) - real).max())
     say(f"[gfn2] ASE Vibrations with tblite's ASE calculator (same delta 0.005 A, central, "
-        f"{os.cpu_count()} OpenMP threads): {ase_s:.2f} s; olibra is {figures['speedup_vs_ase']:.2f}x faster; "
+        f"{os.cpu_count()} OpenMP threads, SCC accuracy {model.accuracy}): {ase_s:.2f} s "
+        f"(load average {os.getloadavg()[0]:.2f}); olibra is {figures['speedup_vs_ase']:.2f}x faster; "
         f"largest frequency difference above the 6 rigid-body modes "
         f"{figures['max_frequency_difference_vs_ase_cm1']:.2f} cm^-1")
     return figures
