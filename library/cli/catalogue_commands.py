@@ -109,7 +109,9 @@ def cmd_show(args) -> int:
 
 def summary_lines(summary: dict) -> list[str]:
     """A computed record's summary as short 'name  value' lines."""
-    return [f"{label:<30}{text}" for label, text in records.summary_items(summary)]
+    items = records.summary_items(summary)
+    width = max((len(label) for label, _ in items), default=0) + 2
+    return [f"{label:<{width}}{text}" for label, text in items]
 
 
 def cmd_list(args) -> int:
