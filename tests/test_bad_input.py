@@ -3,13 +3,19 @@
 import hashlib
 
 import pytest
+from catalogue_helpers import draft
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from sqlalchemy import select
 
-from catalogue_helpers import draft
 from library.catalogue import curation, transfer
-from library.catalogue.models import AuditEntry, Material, MaterialOdor, Provenance, Synonym
+from library.catalogue.models import (
+    AuditEntry,
+    Material,
+    MaterialOdor,
+    Provenance,
+    Synonym,
+)
 from library.structures import StructureError, standardize
 
 GOOD_MOLFILE = standardize("CCO").molfile
@@ -130,14 +136,8 @@ def test_bad_structures_are_refused_with_reason(text, message):
 
 
 def _import(catalogue, data: bytes, name: str, keep_good=False):
-    rows = transfer.read_rows(name, data=data)
-    with catalogue.sessions() as session:
-        with session.begin() as outer:
-            report = transfer.import_rows(session, rows, keep_good=keep_good,
-                                          default_structure_source="from memory")
-            if not report.committed:
-                outer.rollback()
-    return report
+    return transfer.import_into(catalogue, transfer.read_rows(name, data=data), keep_good=keep_good,
+                                default_structure_source="from memory")
 
 
 @pytest.mark.parametrize("data,message", BAD_CSV)

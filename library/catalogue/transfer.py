@@ -275,6 +275,16 @@ def import_rows(session: Session, rows: Iterable[InputRow], *, keep_good: bool =
     return report
 
 
+def import_into(catalogue, rows: Iterable[InputRow], **options) -> ImportReport:
+    """Run `import_rows` in one transaction of `catalogue`, rolled back unless the report is committed."""
+    with catalogue.sessions() as session:
+        with session.begin() as outer:
+            report = import_rows(session, rows, **options)
+            if not report.committed:
+                outer.rollback()
+    return report
+
+
 def _materials(session: Session, *, include_retired: bool = True) -> list[Material]:
     query = select(Material).options(
         selectinload(Material.synonyms), selectinload(Material.provenance),

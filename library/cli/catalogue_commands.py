@@ -12,7 +12,14 @@ from sqlalchemy.orm import selectinload
 from library import computations
 from library.catalogue import curation, records, transfer
 from library.catalogue.database import Catalogue, describe_url, initialize, resolve_url
-from library.catalogue.models import AuditEntry, ComputedRecord, Material, MaterialOdor, OdorDescriptor, PairFlag
+from library.catalogue.models import (
+    AuditEntry,
+    ComputedRecord,
+    Material,
+    MaterialOdor,
+    OdorDescriptor,
+    PairFlag,
+)
 from library.cli.output import FORMATS, emit, progress_bar
 from library.errors import OlibraError
 
@@ -142,15 +149,10 @@ def cmd_import(args) -> int:
     rows = transfer.read_rows(args.file)
     bar = progress_bar(len(rows), "importing", unit="row",
                        enabled=len(rows) >= PROGRESS_MIN_ROWS and not args.quiet)
-    with catalogue.sessions() as session:
-        with session.begin() as outer:
-            report = transfer.import_rows(session, rows, keep_good=args.keep_good,
-                                          max_heavy_atoms=args.max_heavy_atoms,
-                                          canonical_tautomer=args.canonical_tautomer,
-                                          default_structure_source=args.structure_source,
-                                          progress=bar.update)
-            if not report.committed:
-                outer.rollback()
+    report = transfer.import_into(catalogue, rows, keep_good=args.keep_good,
+                                  max_heavy_atoms=args.max_heavy_atoms,
+                                  canonical_tautomer=args.canonical_tautomer,
+                                  default_structure_source=args.structure_source, progress=bar.update)
     bar.close()
     shown = report.rows if args.verbose else [r for r in report.rows if r.status != "added"]
     if not args.quiet:

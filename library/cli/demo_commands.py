@@ -17,12 +17,7 @@ DEMO_QUERY = "Citral"
 
 def load_seed(catalogue) -> transfer.ImportReport:
     """Import the seed catalogue (idempotent: materials already present are left as they are)."""
-    rows = transfer.read_rows(SEED_MATERIALS)
-    with catalogue.sessions() as session:
-        with session.begin() as outer:
-            report = transfer.import_rows(session, rows)
-            if not report.committed:
-                outer.rollback()
+    report = transfer.import_into(catalogue, transfer.read_rows(SEED_MATERIALS))
     if report.rejected:
         first = report.rejected[0]
         raise OlibraError(f"the seed catalogue has a bad row {first.row} ({first.name}: {first.message}); "
