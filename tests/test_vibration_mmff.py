@@ -4,6 +4,7 @@ import numpy as np
 import pytest
 from rdkit import Chem
 from rdkit.Chem import AllChem, rdMolTransforms
+from reference_spectra import EXPERIMENTAL_FUNDAMENTALS_CM1
 
 from library.vibration import mmff
 from library.vibration.errors import MissingParametersError, VibrationInputError
@@ -61,17 +62,12 @@ def test_gradient_route_matches_energy_second_differences(smiles, scheme, step_a
     assert np.abs(naive - reference).max() > 0.1 * scale  # if RDKit ever fixes its cache, this flags it
 
 
-# NIST CCCBDB, experimental vibrational fundamentals (gas phase), cm^-1, degeneracies written out.
-# Values from memory (not re-checked against the database in this session).
-EXPERIMENTAL_FUNDAMENTALS_CM1 = {
-    "water": ("O", [1595, 3657, 3756]),
-    "methane": ("C", [1306] * 3 + [1534] * 2 + [2917] + [3019] * 3),
-    "formaldehyde": ("C=O", [1167, 1249, 1500, 1746, 2782, 2843]),
-    "ethylene": ("C=C", [826, 943, 949, 1023, 1236, 1342, 1444, 1623, 2989, 3026, 3103, 3106]),
-}
+# MMFF94 is compared on the molecules it describes; carbon dioxide is far off (checked apart below).
+FUNDAMENTALS_FOR_MMFF = {name: value for name, value in EXPERIMENTAL_FUNDAMENTALS_CM1.items()
+                         if name != "carbon dioxide"}
 
 
-@pytest.mark.parametrize("name", sorted(EXPERIMENTAL_FUNDAMENTALS_CM1))
+@pytest.mark.parametrize("name", sorted(FUNDAMENTALS_FOR_MMFF))
 def test_mmff_against_experimental_fundamentals(name):
     smiles, experimental = EXPERIMENTAL_FUNDAMENTALS_CM1[name]
     result = mmff.vibrations(_embedded(smiles))
