@@ -19,7 +19,6 @@ KINDS = ("shape", "vibration")
 # What a shape record holds besides the descriptors: the ensemble itself, so
 # that overlays need no new embedding.
 SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments/2"
-VIBRATION_ENGINES = ("mmff", "gfn2")
 
 
 @dataclass(frozen=True)
@@ -34,15 +33,9 @@ class Plan:
         unknown = [k for k in self.kinds if k not in KINDS]
         if unknown or not self.kinds:
             raise ValueError(f"unknown record kind(s) {unknown}; choose from {', '.join(KINDS)}")
-        if self.vibration_engine not in VIBRATION_ENGINES:
-            raise ValueError(f"unknown vibration engine {self.vibration_engine!r}; "
-                             f"choose from {', '.join(VIBRATION_ENGINES)}")
+        from library.vibration import engines
 
-
-def _vibration_module(engine: str):
-    from library.vibration import spectrum as spectrum_module
-
-    return spectrum_module.engine_module(engine)
+        engines.get(self.vibration_engine)  # refuses an unknown engine, naming the choices
 
 
 def stamps(plan: Plan) -> list[EngineStamp]:
@@ -54,9 +47,10 @@ def stamps(plan: Plan) -> list[EngineStamp]:
         parameters = dict(shape.parameters(**plan.ensemble_knobs), stored=SHAPE_RECORD_LAYOUT)
         out.append(EngineStamp("shape", shape.ENGINE_NAME, shape.ENGINE_VERSION, parameters))
     if "vibration" in plan.kinds:
+        from library.vibration import engines
         from library.vibration import spectrum as spectrum_module
 
-        module = _vibration_module(plan.vibration_engine)
+        module = engines.engine_module(plan.vibration_engine)
         out.append(EngineStamp("vibration", module.ENGINE_NAME, module.ENGINE_VERSION,
                                spectrum_module.record_parameters(plan.vibration_engine,
                                                                  **plan.ensemble_knobs)))
@@ -66,8 +60,10 @@ def stamps(plan: Plan) -> list[EngineStamp]:
 @lru_cache(maxsize=1)
 def current_stamps() -> dict[tuple[str, str], EngineStamp]:
     """The stamp each (kind, engine name) record must carry now; engines not installed are left out."""
+    from library.vibration import engines
+
     out: dict[tuple[str, str], EngineStamp] = {}
-    plans = [Plan(kinds=("shape",))] + [Plan(kinds=("vibration",), vibration_engine=e) for e in VIBRATION_ENGINES]
+    plans = [Plan(kinds=("shape",))] + [Plan(kinds=("vibration",), vibration_engine=e) for e in engines.keys()]
     for plan in plans:
         try:
             found = stamps(plan)
@@ -128,8 +124,9 @@ def ensemble_from_arrays(smiles: str, arrays: dict, *, max_members: int | None =
     from rdkit.Geometry import Point3D
 
     from library.conformers import Conformer, ConformerEnsemble
+    from library.structures import mol_from_smiles
 
-    template = Chem.AddHs(Chem.MolFromSmiles(smiles))
+    template = Chem.AddHs(mol_from_smiles(smiles))
     numbers = np.array([a.GetAtomicNum() for a in template.GetAtoms()])
     if not np.array_equal(numbers, arrays["atomic_number"].astype(int)):
         raise ValueError(f"stored conformers of {smiles} do not match its atoms; recompute its shape record")

@@ -28,6 +28,7 @@ from library.errors import OlibraError
 
 __all__ = [
     "Conformer",
+    "boltzmann_weights",
     "ConformerEnsemble",
     "ConformerError",
     "MAX_HEAVY_ATOMS",
@@ -99,12 +100,12 @@ class ConformerEnsemble:
 def to_mol(mol_or_smiles: Chem.Mol | str) -> Chem.Mol:
     """Parse a SMILES string or copy a Mol; raise ConformerError when unusable."""
     if isinstance(mol_or_smiles, str):
-        text = mol_or_smiles.strip()
-        if not text:
-            raise ConformerError("empty SMILES string")
-        mol = Chem.MolFromSmiles(text)
-        if mol is None:
-            raise ConformerError(f"could not parse SMILES {mol_or_smiles!r}")
+        from library.structures import StructureError, mol_from_smiles
+
+        try:
+            mol = mol_from_smiles(mol_or_smiles)
+        except StructureError as exc:
+            raise ConformerError(str(exc)) from None
     elif isinstance(mol_or_smiles, Chem.Mol):
         mol = Chem.Mol(mol_or_smiles)
         try:
@@ -125,6 +126,29 @@ def to_mol(mol_or_smiles: Chem.Mol | str) -> Chem.Mol:
     if any(atom.GetAtomicNum() == 0 for atom in mol.GetAtoms()):
         raise ConformerError("structure contains dummy atoms (*); give a complete structure")
     return mol
+
+
+def boltzmann_weights(energies_kcal: np.ndarray, stereoisomers: np.ndarray, *, temperature_k: float = 298.15
+                      ) -> np.ndarray:
+    """Populations from energies (kcal/mol): Boltzmann within each stereoisomer, stereoisomers equal.
+
+    A material with unassigned stereocenters is an unknown mixture, so each stereoisomer gets the
+    same total weight; within one, weights follow exp(-(E - E_min) / (R T)). The weights sum to 1.
+    """
+    energies = np.asarray(energies_kcal, dtype=float)
+    groups = np.asarray(stereoisomers)
+    if not temperature_k > 0:
+        raise ConformerError(f"temperature must be positive (kelvin), got {temperature_k}")
+    if energies.shape != groups.shape or energies.ndim != 1 or energies.size == 0:
+        raise ConformerError(f"need one stereoisomer label per energy, got {energies.shape} and {groups.shape}")
+    rt = GAS_CONSTANT_KCAL_PER_MOL_K * temperature_k
+    weights = np.empty_like(energies)
+    labels = np.unique(groups)
+    for label in labels:
+        members = groups == label
+        factors = np.exp(-(energies[members] - energies[members].min()) / rt)
+        weights[members] = factors / factors.sum() / len(labels)
+    return weights
 
 
 def heavy_atom_mol(mol_h: Chem.Mol) -> Chem.Mol:
@@ -343,7 +367,6 @@ def ensemble(
                  max_stereoisomers)
     mol = to_mol(mol_or_smiles)
     isomers = _stereoisomers(mol, max_stereoisomers, seed)
-    rt = GAS_CONSTANT_KCAL_PER_MOL_K * temperature_k
 
     total_cap = max_conformers if max_conformers is not None else default_max_conformers(mol)
     cap = math.ceil(total_cap / len(isomers))
@@ -373,7 +396,7 @@ def ensemble(
             )
     n_isomers = len(embedded)
 
-    members: list[Conformer] = []
+    kept_conformers: list[tuple[Chem.Mol, float, int]] = []
     force_fields: set[str] = set()
     for index, (mol_h, work, order, conf_ids) in enumerate(embedded):
         force_field = _force_field(work)
@@ -386,18 +409,13 @@ def ensemble(
         e_min = by_id[by_energy[0]]
         in_window = [c for c in by_energy if by_id[c] - e_min <= energy_window_kcal]
         kept = _prune(work, in_window, rmsd_threshold_a, cap)
-        relative = np.array([by_id[c] - e_min for c in kept], dtype=np.float64)
-        boltzmann = np.exp(-relative / rt)
-        boltzmann /= boltzmann.sum()
-        for cid, e_rel, w in zip(kept, relative, boltzmann):
-            members.append(
-                Conformer(
-                    mol=_single_conformer_mol(mol_h, work, order, cid),
-                    energy_kcal=float(e_rel),
-                    weight=float(w) / n_isomers,
-                    stereoisomer=index,
-                )
-            )
+        kept_conformers += [(_single_conformer_mol(mol_h, work, order, cid), by_id[cid] - e_min, index)
+                            for cid in kept]
+    energies = np.array([energy for _, energy, _ in kept_conformers], dtype=np.float64)
+    groups = np.array([index for _, _, index in kept_conformers])
+    weights = boltzmann_weights(energies, groups, temperature_k=temperature_k)
+    members = [Conformer(mol=conformer_mol, energy_kcal=float(energy), weight=float(weight), stereoisomer=int(index))
+               for (conformer_mol, energy, index), weight in zip(kept_conformers, weights)]
     force_field = "MMFF94" if force_fields == {"MMFF94"} else "UFF"
     return ConformerEnsemble(
         members=tuple(members),

@@ -11,11 +11,14 @@ from library.errors import OlibraError
 
 def structure_svg(molfile: str, smiles: str, *, width_px: int = 360, height_px: int = 260) -> str:
     """SVG text of the stored structure (molfile, else SMILES), stereo and isotope labels shown."""
+    from library.structures import StructureError, mol_from_smiles
+
     mol = Chem.MolFromMolBlock(molfile, removeHs=False) if molfile else None
     if mol is None:
-        mol = Chem.MolFromSmiles(smiles)
-    if mol is None:
-        raise OlibraError("the stored structure cannot be drawn; check it with `olibra show`")
+        try:
+            mol = mol_from_smiles(smiles)
+        except StructureError:
+            raise OlibraError("the stored structure cannot be drawn; check the material's structure") from None
     mol = Chem.RemoveHs(mol)  # keeps isotope-labelled hydrogens (deuterium), which are shown
     if mol.GetNumConformers() == 0 or mol.GetConformer().Is3D():
         rdDepictor.Compute2DCoords(mol)

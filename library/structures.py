@@ -301,3 +301,20 @@ def check_cas(text: str) -> str:
             f"CAS RN {candidate} has check digit {check} but its digits give {expected}; "
             "the number was probably mistyped")
     return f"{first}-{second}-{check}"
+
+
+def mol_from_smiles(smiles: str) -> Chem.Mol:
+    """The RDKit molecule of a SMILES string (sanitized, implicit hydrogens), or StructureError.
+
+    The one place where olibra reads a SMILES it already holds (a standardized structure, a
+    computation's input); user input goes through :func:`standardize` instead, which says more.
+    """
+    if not isinstance(smiles, str):
+        raise StructureError(f"expected a SMILES string, got {type(smiles).__name__}")
+    if not smiles.strip():
+        raise StructureError("the SMILES string is empty; give a structure")
+    with _captured_rdkit_messages() as messages:
+        mol = Chem.MolFromSmiles(smiles.strip())
+    if mol is None:
+        raise StructureError(f"could not parse SMILES {_shorten(smiles.strip())!r}{_rdkit_detail(messages)}")
+    return mol

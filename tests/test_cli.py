@@ -88,7 +88,7 @@ def test_errors_are_one_line_with_exit_code_2(olibra, args, message):
 
 def test_uninitialized_database_gives_advice(tmp_path, capsys):
     code = main(["--db", f"sqlite:///{tmp_path / 'empty.sqlite'}", "list"])
-    assert code == 2 and "run `olibra init` first" in capsys.readouterr().err
+    assert code == 2 and "no olibra catalogue yet; create it first (run `olibra init`)" in capsys.readouterr().err
 
 
 def test_console_script_runs_as_a_program(tmp_path):

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from library.search import bench
+from benchmarks import search as bench
 from library.search.disagreements import (
     SHAPE_NOT_VIBRATION,
     VIBRATION_NOT_SHAPE,

@@ -6,6 +6,7 @@ from alembic.runtime.migration import MigrationContext
 
 from library.catalogue.database import CatalogueError, Catalogue, head_revision, initialize, make_engine
 from library.catalogue.models import Base
+from library.errors import Remedy
 
 
 def test_models_and_migrations_agree(catalogue_url):
@@ -26,5 +27,6 @@ def test_init_is_idempotent_and_reaches_head(catalogue_url):
 
 def test_uninitialized_catalogue_is_refused_with_advice(sqlite_url):
     make_engine(sqlite_url).dispose()
-    with pytest.raises(CatalogueError, match="run `olibra init`"):
+    with pytest.raises(CatalogueError, match="holds no olibra catalogue yet; create it first") as refused:
         Catalogue(sqlite_url)
+    assert refused.value.remedy == Remedy.INIT_CATALOGUE  # each front end names its own way to do that

@@ -10,7 +10,7 @@ from rdkit.Chem import rdFingerprintGenerator
 from scipy.spatial.distance import cdist
 from sklearn.metrics.pairwise import cosine_similarity
 
-from library.search import bench
+from benchmarks import search as bench
 from library.search.index import RevisionMismatchError, SearchFilter, SimilarityIndex
 
 SMILES = ["CCO", "CC(C)=CCCC(C)=CCO", "O=Cc1ccccc1", "CC(=O)OCC", "CCCCCCCC=O", "c1ccc2ccccc2c1", "CC1=CCC(CC1)C(C)=C"]
@@ -70,7 +70,7 @@ def test_first_stage_identity_is_exact_with_all_components(data):
     # with as many components as the PCA sample allows the compressed scores equal the cosine
     ids, shape, fingerprints = data
     index = SimilarityIndex(pca_components=399).fit(ids, shape, fingerprints)
-    approx = index.vibration_scores(index.fingerprints_[5], approximate=True)
+    approx = index.scores("vibration", index.query_block(fingerprint=index.fingerprints_[5]), approximate=True)
     reference = reference_scores(shape, fingerprints, 5)["vibration"]
     np.testing.assert_allclose(approx, reference, atol=1e-4)  # float32 sums over 801 values
 

@@ -6,7 +6,7 @@ import pytest
 from catalogue_helpers import draft
 from library import computations
 from library.catalogue import curation, jobs, observations
-from library.search import service
+from library.search import catalogue_index, disagreement_policy, evidence, pairs, substitutes
 
 # Real aroma materials (structures from memory); the test pairs that the two hypotheses
 # treat differently: a mirror-image pair and an isotopologue pair.
@@ -53,18 +53,18 @@ def searchable(tmp_path_factory):
 @pytest.fixture
 def index(searchable):
     catalogue, folder = searchable
-    return service.load_index(catalogue, cache_dir=folder / "cache")
+    return catalogue_index.load_index(catalogue, cache_dir=folder / "cache")
 
 
 def test_every_material_is_indexed_and_the_cache_is_reused_until_a_change(searchable):
     catalogue, folder = searchable
-    first = service.load_index(catalogue, cache_dir=folder / "cache-a")
+    first = catalogue_index.load_index(catalogue, cache_dir=folder / "cache-a")
     assert not first.from_cache and len(first.materials) == len(MATERIALS) and not first.unindexed
-    again = service.load_index(catalogue, cache_dir=folder / "cache-a")
+    again = catalogue_index.load_index(catalogue, cache_dir=folder / "cache-a")
     assert again.from_cache and again.revision == first.revision
     with catalogue.transaction() as session:
         curation.set_restricted(session, curation.find_material(session, "Anethole"), True)
-    changed = service.load_index(catalogue, cache_dir=folder / "cache-a")
+    changed = catalogue_index.load_index(catalogue, cache_dir=folder / "cache-a")
     assert not changed.from_cache and changed.revision != first.revision
     with catalogue.transaction() as session:
         curation.set_restricted(session, curation.find_material(session, "Anethole"), False)
@@ -72,7 +72,7 @@ def test_every_material_is_indexed_and_the_cache_is_reused_until_a_change(search
 
 def test_substitutes_rank_by_the_chosen_metric_and_report_every_metric(searchable, index):
     catalogue, _ = searchable
-    outcome = service.find_substitutes(catalogue, "Citral", metric="blend", weight=0.5, k=5, cat_index=index)
+    outcome = substitutes.find_substitutes(catalogue, "Citral", metric="blend", weight=0.5, k=5, cat_index=index)
     names = [c.material.name for c in outcome.candidates]
     assert "Citral" not in names and len(names) == 5
     blends = [c.scores["blend"] for c in outcome.candidates]
@@ -88,13 +88,13 @@ def test_substitutes_rank_by_the_chosen_metric_and_report_every_metric(searchabl
 
 def test_shape_search_is_reranked_by_overlay_and_filters_apply(searchable, index):
     catalogue, _ = searchable
-    outcome = service.find_substitutes(catalogue, "(R)-carvone", metric="shape", k=3, cat_index=index)
+    outcome = substitutes.find_substitutes(catalogue, "(R)-carvone", metric="shape", k=3, cat_index=index)
     assert outcome.candidates[0].material.name == "(S)-carvone"
     overlays = [c.scores["overlay"] for c in outcome.candidates]
     assert overlays == sorted(overlays, reverse=True)
-    filtered = service.find_substitutes(
+    filtered = substitutes.find_substitutes(
         catalogue, "(R)-carvone", metric="shape", k=5, cat_index=index,
-        filters=service.build_filter(must_not_have=["herbal"], mw_range=(100, 160)))
+        filters=substitutes.build_filter(must_not_have=["herbal"], mw_range=(100, 160)))
     for c in filtered.candidates:
         assert "herbal" not in c.material.odors and 100 <= c.material.molecular_weight <= 160
 
@@ -102,7 +102,7 @@ def test_shape_search_is_reranked_by_overlay_and_filters_apply(searchable, index
 def test_new_structure_is_computed_on_the_fly_and_not_stored(searchable, index):
     catalogue, _ = searchable
     revision = catalogue.revision()
-    outcome = service.find_substitutes(catalogue, "CC(C)=CCCC(C)=CC#N", k=3, cat_index=index)  # citral nitrile mix
+    outcome = substitutes.find_substitutes(catalogue, "CC(C)=CCCC(C)=CC#N", k=3, cat_index=index)  # citral nitrile mix
     assert outcome.query.material_id is None and any("not stored" in n for n in outcome.notes)
     assert outcome.candidates[0].material.name in ("Geranyl nitrile", "Citral")
     with catalogue.reading() as session:
@@ -113,7 +113,7 @@ def test_new_structure_is_computed_on_the_fly_and_not_stored(searchable, index):
 
 def test_compare_explains_the_mirror_image_pair(searchable, index):
     catalogue, _ = searchable
-    result = service.compare(catalogue, "(R)-carvone", "(S)-carvone", cat_index=index)
+    result = pairs.compare(catalogue, "(R)-carvone", "(S)-carvone", cat_index=index)
     # enantiomers have identical harmonic frequencies (textbook: same potential energy surface)
     assert result.scores["vibration"] > 0.999
     assert result.scores["structure"] == 1.0  # Morgan bits ignore stereo unless asked
@@ -124,7 +124,7 @@ def test_compare_explains_the_mirror_image_pair(searchable, index):
 
 def test_disagreements_surface_the_isotopologue_and_mirror_image_pairs(searchable, index):
     catalogue, _ = searchable
-    rows, label = service.find_disagreement_rows(catalogue, k=5, cat_index=index)
+    rows, label = disagreement_policy.find_disagreement_rows(catalogue, k=5, cat_index=index)
     pairs = {frozenset((r.a.name, r.b.name)): r for r in rows}
     isotopologue = pairs[frozenset(("Benzaldehyde", "Benzaldehyde-d6"))]
     assert isotopologue.pair.direction == "shape-not-vibration"
@@ -140,7 +140,7 @@ def test_flags_and_observations_feed_the_scorecard(searchable, index, tmp_path):
     with catalogue.transaction() as session:
         a, b = (curation.find_material(session, n) for n in ("Benzaldehyde", "Benzaldehyde-d6"))
         observations.flag_pair(session, b, a, kind="shape-alike smell-different", note="panel check")
-    rows, _ = service.find_disagreement_rows(catalogue, k=5, cat_index=index)
+    rows, _ = disagreement_policy.find_disagreement_rows(catalogue, k=5, cat_index=index)
     flagged = [r for r in rows if r.flags]
     assert flagged and flagged[0].flags == ["shape-alike smell-different"]
 
@@ -154,7 +154,7 @@ def test_flags_and_observations_feed_the_scorecard(searchable, index, tmp_path):
             session, "\n".join(lines).encode(), "panel.csv", set_name="demo panel", kind="panel profile",
             source="demo")
     assert report.stored and report.values == 32
-    scores, label, _ = service.run_scorecard(catalogue, observation="demo panel", permutations=99,
+    scores, label, _ = evidence.run_scorecard(catalogue, observation="demo panel", permutations=99,
                                              resamples=99, k=2, cat_index=index)
     assert [s.metric for s in scores] == ["shape", "vibration", "blend", "structure"]
     for s in scores:
@@ -180,7 +180,7 @@ def test_bad_observation_files_store_nothing(searchable):
 
 def test_metric_matrices_agree_with_pair_scores(index):
     rows = np.arange(len(index.materials))
-    matrices = service.metric_matrices(index.index, rows)
+    matrices = evidence.metric_matrices(index.index, rows)
     pair = index.index.pair_scores([0, 1, 2], [3, 4, 5])
     for metric in ("shape", "vibration", "structure"):
         assert np.allclose([matrices[metric][0, 3], matrices[metric][1, 4], matrices[metric][2, 5]],

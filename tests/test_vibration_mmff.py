@@ -161,5 +161,5 @@ def test_missing_hydrogens_and_coordinates_are_reported():
         mmff.vibrations(mol)
     with pytest.raises(VibrationInputError, match="no 3D conformer"):
         mmff.vibrations(Chem.AddHs(Chem.MolFromSmiles("CCO")))
-    with pytest.raises(VibrationInputError, match="unknown MMFF engine option"):
+    with pytest.raises(VibrationInputError, match="unknown MMFF94 engine option"):
         mmff.parameters(step=1)

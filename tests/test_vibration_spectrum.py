@@ -8,6 +8,7 @@ import pytest
 from rdkit import Chem
 
 from library import conformers
+from library.conformers import boltzmann_weights
 from library.vibration import spectrum as spectrum_module
 from library.vibration.errors import VibrationInputError
 from library.vibration.spectrum import (
@@ -60,7 +61,7 @@ def test_weights_sum_to_one_and_stereoisomers_are_equal():
 
 def test_boltzmann_weights_follow_the_engine_energies():
     # two conformers 1 kcal/mol apart at 298.15 K: ratio exp(-1 / RT), RT = 0.5925 kcal/mol
-    weights = spectrum_module.boltzmann_weights(np.array([0.0, 1.0]), np.array([0, 0]), temperature_k=298.15)
+    weights = boltzmann_weights(np.array([0.0, 1.0]), np.array([0, 0]), temperature_k=298.15)
     assert weights[1] / weights[0] == pytest.approx(np.exp(-1.0 / 0.592487), rel=1e-5)  # RT from memory, 6 digits
 
 

@@ -445,9 +445,9 @@ def test_material_page_draws_the_spectrum_and_npr_position(reader, catalogue):
     spectrum = re.search(r'<svg class="chart spectrum".*?</svg>', page, re.DOTALL).group(0)
     band_titles = re.findall(r"<title>(\d+) cm⁻¹, relative height ([\d.]+)</title>", spectrum)
     assert len(band_titles) >= 6 and max(float(h) for _, h in band_titles) == 1.0
-    from library.search import service
+    from library.search.spectra import spectrum_profile
 
-    profile = service.spectrum_profile(catalogue, "Citral")
+    profile = spectrum_profile(catalogue, "Citral")
     assert [int(p) for p, _ in band_titles] == [round(b.position_cm1) for b in profile.bands]
     # the tallest band is the C-H stretch cluster (textbook: 2850-3100 cm-1; MMFF94 within ~10 %)
     assert 2700 <= int(band_titles[0][0]) <= 3300

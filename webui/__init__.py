@@ -44,7 +44,7 @@ class IndexCache:
     """The catalogue's similarity index held in memory, plus small results computed from it.
 
     Each use reads the catalogue revision (one cheap query) and rebuilds the index
-    when it moved; `service.load_index` builds from one consistent snapshot and the
+    when it moved; `catalogue_index.load_index` builds from one consistent snapshot and the
     new index replaces the old one in a single assignment, so a request sees
     either the old or the new catalogue, never a mixture. One thread rebuilds;
     the others wait for it. Results memoized with `memo` (disagreement lists,
@@ -77,7 +77,7 @@ class IndexCache:
     def _fresh(self):
         from pathlib import Path
 
-        from library.search import service
+        from library.search.catalogue_index import load_index
 
         revision = self._state.catalogue.revision()
         current = self._current
@@ -87,9 +87,9 @@ class IndexCache:
             current = self._current
             if current is not None and current[1] == revision:
                 return current
-            index = service.load_index(self._state.catalogue, vibration_engine=self.vibration_engine,
-                                       cache_dir=Path(self._cache_dir) if self._cache_dir else None)
-            built_from = int(index.revision.split("-", 1)[0].lstrip("r") or 0)
+            index = load_index(self._state.catalogue, vibration_engine=self.vibration_engine,
+                               cache_dir=Path(self._cache_dir) if self._cache_dir else None)
+            built_from = index.revision.catalogue_revision
             with self._memo_lock:
                 self._memo.clear()
                 self._current = (index, built_from)

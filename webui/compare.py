@@ -7,8 +7,9 @@ from __future__ import annotations
 from flask import Blueprint, render_template, request
 
 from library.errors import OlibraError
-from library.search import service
+from library.search.spectra import spectrum_profile
 from webui import charts, explore, web_state
+from webui.errors import user_message
 
 blueprint = Blueprint("compare", __name__)
 
@@ -22,11 +23,11 @@ def index():
             result = explore.compare(request.args)
             engine = web_state().index_cache.vibration_engine
             catalogue = web_state().catalogue
-            profile_a = service.spectrum_profile(catalogue, str(result.a.id), vibration_engine=engine)
-            profile_b = service.spectrum_profile(catalogue, str(result.b.id), vibration_engine=engine)
+            profile_a = spectrum_profile(catalogue, str(result.a.id), vibration_engine=engine)
+            profile_b = spectrum_profile(catalogue, str(result.b.id), vibration_engine=engine)
             chart = charts.mirrored_spectra_svg(profile_a, profile_b, result.explanation["bands"])
         except OlibraError as exc:
-            error, result = str(exc), None
+            error, result = user_message(exc), None
     return render_template("compare/index.html", a=a, b=b, result=result, chart=chart, error=error,
                            weight=request.args.get("weight", "0.5")), 400 if error else 200
 
@@ -35,7 +36,7 @@ def index():
 def material_spectrum_chart(material_id: int):
     """The material page's spectrum chart, or None when the material has no vibration record."""
     try:
-        profile = service.spectrum_profile(web_state().catalogue, str(material_id),
+        profile = spectrum_profile(web_state().catalogue, str(material_id),
                                            vibration_engine=web_state().index_cache.vibration_engine)
     except OlibraError:
         return None

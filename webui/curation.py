@@ -15,6 +15,7 @@ from library.catalogue.edits import MaterialChanges, apply_changes, odor_text
 from library.catalogue.models import Material, MaterialOdor
 from library.errors import OlibraError
 from webui import db_session, queries, write_transaction
+from webui.errors import user_message
 from webui.forms import (
     EditMaterialForm,
     ImportForm,
@@ -76,7 +77,7 @@ def add_material():
                 existing = outcome.material
                 status = 409
             except OlibraError as exc:
-                form.form_errors.append(str(exc))
+                form.form_errors.append(user_message(exc))
     return render_template("curation/add.html", form=form, existing=existing), status
 
 
@@ -123,7 +124,7 @@ def edit_material(material_id: int):
                 with write_transaction() as session:
                     changed = apply_changes(session, material, changes, actor=current_user.username)
             except OlibraError as exc:
-                form.form_errors.append(str(exc))
+                form.form_errors.append(user_message(exc))
             else:
                 flash(f"Saved: {', '.join(f.replace('_', ' ') for f in changed)}." if changed
                       else "Nothing changed.", "success")
@@ -171,7 +172,7 @@ def import_file():
                                     actor=current_user.username)
                 status = 200 if report.committed else 422
             except OlibraError as exc:
-                form.file.errors = [*form.file.errors, str(exc)]
+                form.file.errors = [*form.file.errors, user_message(exc)]
     return render_template("curation/import.html", form=form, report=report), status
 
 
@@ -192,6 +193,6 @@ def vocabulary():
                       else f"Added {term!r} to the vocabulary.", "notice" if known else "success")
                 return redirect(url_for("curation.vocabulary"))
             except OlibraError as exc:
-                form.term.errors = [*form.term.errors, str(exc)]
+                form.term.errors = [*form.term.errors, user_message(exc)]
     terms = queries.vocabulary_with_counts(db_session())
     return render_template("curation/vocabulary.html", form=form, terms=terms), status

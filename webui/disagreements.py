@@ -12,6 +12,7 @@ from library.catalogue import curation, observations
 from library.errors import OlibraError
 from library.search.disagreements import DIRECTIONS
 from webui import explore, write_transaction
+from webui.errors import user_message
 
 blueprint = Blueprint("disagreements", __name__)
 
@@ -33,7 +34,7 @@ def index():
         sources = explore.observation_sources()
         asked = explore.disagreement_request(request.args)
     except OlibraError as exc:
-        asked, error = explore.DisagreementRequest(), str(exc)
+        asked, error = explore.DisagreementRequest(), user_message(exc)
     total = 0
     if error is None:
         try:
@@ -44,7 +45,7 @@ def index():
             start = (page - 1) * explore.DISAGREEMENTS_PER_PAGE
             rows = ordered[start:start + explore.DISAGREEMENTS_PER_PAGE]
         except OlibraError as exc:
-            error = str(exc)
+            error = user_message(exc)
     return render_template(
         "disagreements/index.html", asked=asked, rows=rows, label=label, error=error, total=total, page=page,
         pages=pages, sort=sort, order=order, columns=COLUMNS, directions=DIRECTIONS, sources=sources,

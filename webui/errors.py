@@ -8,7 +8,7 @@ from sqlalchemy.exc import OperationalError
 from werkzeug.exceptions import HTTPException, InternalServerError
 
 from library.catalogue.database import CatalogueError
-from library.errors import OlibraError
+from library.errors import OlibraError, Remedy
 
 TITLES = {
     400: "The request could not be used",
@@ -26,6 +26,24 @@ ADVICE = {
     500: ("olibra hit an internal problem and nothing was changed by this request. "
           "Try again; if it happens again, tell whoever runs this server what you did."),
 }
+
+
+# What the web suggests for each remedy the core names (the command line has its own hints).
+HINTS = {
+    Remedy.COMPUTE_RECORDS: "a curator can start a recompute on the Jobs page",
+    Remedy.INIT_CATALOGUE: "whoever runs this server must create or upgrade the catalogue",
+    Remedy.FIND_MATERIAL: "the Catalogue page lists every material with its id",
+    Remedy.ADD_MATERIAL: "a curator can add it on the Add material page",
+    Remedy.VOCABULARY: "the Vocabulary page lists the terms; curators can add new ones there",
+    Remedy.IMPORT_OBSERVATIONS: "ask whoever keeps the observation data sets to import it",
+    Remedy.LIST_USERS: "ask whoever runs this server which accounts exist",
+}
+
+
+def user_message(exc: OlibraError) -> str:
+    """The message a web user sees for a user error: the core's words and, if any, the web's hint."""
+    hint = HINTS.get(exc.remedy) if getattr(exc, "remedy", None) else None
+    return f"{exc}" + (f" ({hint})" if hint else "")
 
 
 def _answer(status: int, message: str, *, plain: bool = False):
@@ -60,7 +78,7 @@ def init_app(app) -> None:
 
     @app.errorhandler(CatalogueError)
     def catalogue_unavailable(exc: CatalogueError):
-        return _answer(503, str(exc), plain=True)
+        return _answer(503, user_message(exc), plain=True)
 
     @app.errorhandler(OperationalError)
     def database_problem(exc: OperationalError):
@@ -71,7 +89,7 @@ def init_app(app) -> None:
 
     @app.errorhandler(OlibraError)
     def user_problem(exc: OlibraError):
-        return _answer(400, str(exc))
+        return _answer(400, user_message(exc))
 
     @app.errorhandler(Exception)
     def internal_error(exc):

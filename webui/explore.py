@@ -16,9 +16,9 @@ from flask import Response
 
 from library.catalogue import curation
 from library.errors import OlibraError
-from library.search import service
+from library.catalogue import observations
+from library.search import disagreement_policy, evidence, metrics, pairs, queries, spectra, substitutes
 from library.search.disagreements import DIRECTIONS
-from library.search.index import METRICS
 from webui import search_index, web_state
 
 MAX_KEY_CHARS = 200
@@ -26,7 +26,6 @@ MAX_STRUCTURE_CHARS = 20_000
 MAX_K = 100
 MAX_NEIGHBORS = 100
 DISAGREEMENTS_PER_PAGE = 25
-SCORE_COLUMNS = ("shape", "overlay", "vibration", "blend", "structure")
 SCORECARD_DEFAULTS = {"permutations": 199, "resamples": 200, "k": 5}
 SCORECARD_LIMITS = {"permutations": 9999, "resamples": 10000, "k": 50}
 DISAGREEMENT_SORTS = ("rank", "direction", "basis", "a", "b", "gap", "shape", "vibration", "structure", "observed",
@@ -105,7 +104,12 @@ def observation_sources() -> list[str]:
     """'descriptors' and the names of the stored observation data sets (memoized per revision)."""
     catalogue = web_state().catalogue
     return ["descriptors"] + web_state().index_cache.memo(
-        ("observation sets",), lambda: service.observation_set_names(catalogue))
+        ("observation sets",), lambda: _set_names(catalogue))
+
+
+def _set_names(catalogue) -> list[str]:
+    with catalogue.reading() as session:
+        return observations.set_names(session)
 
 
 # ---------------------------------------------------------------- substitutes
@@ -136,8 +140,8 @@ class SubstituteRequest:
 
 def substitute_request(args) -> SubstituteRequest:
     metric = (args.get("metric") or "blend").strip()
-    if metric not in METRICS:
-        raise ArgumentError(f"metric {metric[:30]!r} is not one of {', '.join(METRICS)}")
+    if metric not in metrics.names(indexed=True):
+        raise ArgumentError(f"metric {metric[:30]!r} is not one of {', '.join(metrics.names(indexed=True))}")
     must_have = must_not_have = []
     if args.get("with") or args.get("without"):
         known = vocabulary()
@@ -161,31 +165,26 @@ def substitute_request(args) -> SubstituteRequest:
 
 def material_keys() -> dict[str, frozenset[int]]:
     catalogue = web_state().catalogue
-    return web_state().index_cache.memo(("material keys",), lambda: service.material_keys(catalogue))
+    return web_state().index_cache.memo(("material keys",), lambda: queries.material_keys(catalogue))
 
 
 def resolve_query(text: str, cat_index):
     """The query for `text`: an indexed material found in the in-memory key table when the key names
     exactly one; otherwise the core's full resolution (structures, ambiguous keys, clear errors)."""
-    key = text.strip()
-    ids = material_keys().get(key.lower()) or material_keys().get(key) or material_keys().get(key.upper())
-    if ids and len(ids) == 1:
-        (material_id,) = ids
-        if material_id in cat_index.materials:
-            return service.indexed_query(cat_index, material_id)
-    return service.resolve_query(web_state().catalogue, text, cat_index)
+    return (queries.resolve_known_key(text, material_keys(), cat_index)
+            or queries.resolve_query(web_state().catalogue, text, cat_index))
 
 
 def find_substitutes(request: SubstituteRequest):
     """(SearchOutcome, CatalogueIndex) for a checked request, from the in-memory index."""
     cat_index, _ = search_index()
-    filters = service.build_filter(mw_range=request.mw_range, logp_range=request.logp_range,
-                                   must_have=request.must_have, must_not_have=request.must_not_have,
-                                   include_retired=request.include_retired,
-                                   include_restricted=request.include_restricted)
+    filters = substitutes.build_filter(mw_range=request.mw_range, logp_range=request.logp_range,
+                                       must_have=request.must_have, must_not_have=request.must_not_have,
+                                       include_retired=request.include_retired,
+                                       include_restricted=request.include_restricted)
     query = resolve_query(request.query_text, cat_index)
-    outcome = service.substitutes_for(web_state().catalogue, query, metric=request.metric, weight=request.weight,
-                                      k=request.k, filters=filters, cat_index=cat_index)
+    outcome = substitutes.find_substitutes(web_state().catalogue, query, metric=request.metric,
+                                           weight=request.weight, k=request.k, filters=filters, cat_index=cat_index)
     return outcome, cat_index
 
 
@@ -195,7 +194,7 @@ def preview_points(cat_index, material_id: int) -> str | None:
 
     cache = web_state().index_cache.memo(("previews",), dict)
     if material_id not in cache:
-        curve = service.fingerprint_curve(cat_index, material_id)
+        curve = spectra.fingerprint_curve(cat_index, material_id)
         cache[material_id] = None if curve is None else charts.preview_points(*curve)
     return cache[material_id]
 
@@ -203,7 +202,7 @@ def preview_points(cat_index, material_id: int) -> str | None:
 def candidate_row(candidate) -> dict:
     m = candidate.material
     row = {"rank": candidate.rank, "id": m.id, "name": m.name, "cas": m.cas_rn, "score": round(candidate.score, 4)}
-    for metric in SCORE_COLUMNS:
+    for metric in metrics.names():
         if metric in candidate.scores:
             row[metric] = round(candidate.scores[metric], 4)
             row[f"{metric}_rank"] = candidate.ranks.get(metric)
@@ -231,7 +230,7 @@ def compare(args):
     if not a or not b:
         raise ArgumentError("give two materials to compare (name, synonym, CAS RN, InChIKey or id)")
     cat_index, _ = search_index()
-    return service.compare(web_state().catalogue, a, b, weight=weight, cat_index=cat_index)
+    return pairs.compare(web_state().catalogue, a, b, weight=weight, cat_index=cat_index)
 
 
 def bands_json(bands) -> dict:
@@ -249,7 +248,7 @@ def comparison_json(result) -> dict:
             "overlay_tanimoto": round(result.explanation["overlay_tanimoto"], 4),
             "overlay_tversky": round(result.explanation["overlay_tversky"], 4),
             "volume_ratio": round(result.explanation["volume_ratio"], 4),
-            "bands": bands_json(result.explanation["bands"]), "caution": service.CAUTION}
+            "bands": bands_json(result.explanation["bands"]), "caution": substitutes.CAUTION}
 
 
 # ---------------------------------------------------------------- disagreements
@@ -277,7 +276,7 @@ def disagreement_request(args) -> DisagreementRequest:
     observation = (args.get("observation") or "descriptors").strip()
     if observation not in ("none", *observation_sources()):
         raise ArgumentError(f"observation source {observation[:60]!r} is neither 'descriptors', 'none' nor a "
-                            "stored data set; import the data set first (olibra observations import)")
+                            "stored data set; import the data set first")
     return DisagreementRequest(
         min_shape=similarity("min_shape", "minimum shape similarity", 0.9),
         max_vibration=similarity("max_vibration", "maximum vibration similarity", 0.6),
@@ -292,7 +291,7 @@ def find_disagreements(request: DisagreementRequest):
     """(rows, observed label), memoized per catalogue revision and thresholds."""
     def compute():
         cat_index, _ = search_index()
-        return service.find_disagreement_rows(
+        return disagreement_policy.find_disagreement_rows(
             web_state().catalogue, k=request.k, min_shape=request.min_shape, max_vibration=request.max_vibration,
             min_vibration=request.min_vibration, max_shape=request.max_shape, direction=request.direction,
             observation=None if request.observation == "none" else request.observation,
@@ -354,7 +353,7 @@ def scorecard_request(args) -> ScorecardRequest:
     observation = (args.get("observation") or "descriptors").strip()
     if observation not in observation_sources():
         raise ArgumentError(f"observation source {observation[:60]!r} is neither 'descriptors' nor a stored "
-                            "data set; import the data set first (olibra observations import)")
+                            "data set; import the data set first")
     values = {}
     for name, label in (("permutations", "permutations"), ("resamples", "bootstrap resamples"),
                         ("k", "k of precision at k")):
@@ -368,7 +367,7 @@ def run_scorecard(request: ScorecardRequest):
     """(list of MetricScore, observed label, notes), memoized per catalogue revision and arguments."""
     def compute():
         cat_index, _ = search_index()
-        return service.run_scorecard(web_state().catalogue, observation=request.observation, k=request.k,
+        return evidence.run_scorecard(web_state().catalogue, observation=request.observation, k=request.k,
                                      permutations=request.permutations, resamples=request.resamples,
                                      cat_index=cat_index)
     return web_state().index_cache.memo(("scorecard", request), compute)

@@ -8,7 +8,7 @@ from wtforms import BooleanField, HiddenField, SelectField, StringField, TextAre
 from wtforms.validators import DataRequired, Length, Optional
 
 from library.catalogue.models import MATERIAL_STATUSES
-from library.computations import VIBRATION_ENGINES
+from library.vibration import engines
 
 PROVENANCE_HELP = ("from memory, demo, measured: <how>, computed: <how>, "
                    "or literature: <journal volume, page (year)>")
@@ -76,4 +76,4 @@ class VocabularyForm(FlaskForm):
 
 class RecomputeForm(FlaskForm):
     kinds = SelectField("Records (all: shape and vibration)", choices=["all", "shape", "vibration"])
-    engine = SelectField("Vibration engine", choices=list(VIBRATION_ENGINES))
+    engine = SelectField("Vibration engine", choices=list(engines.keys()))

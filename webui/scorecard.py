@@ -6,6 +6,7 @@ from flask import Blueprint, render_template, request
 
 from library.errors import OlibraError
 from webui import charts, explore
+from webui.errors import user_message
 
 blueprint = Blueprint("scorecard", __name__)
 
@@ -19,13 +20,13 @@ def index():
         sources = explore.observation_sources()
         asked = explore.scorecard_request(request.args)
     except OlibraError as exc:
-        asked, error = explore.ScorecardRequest(), str(exc)
+        asked, error = explore.ScorecardRequest(), user_message(exc)
     if error is None and explore.flag_argument(request.args, "run"):
         try:
             scores, label, notes = explore.run_scorecard(asked)
             chart = charts.scorecard_svg(scores)
         except OlibraError as exc:
-            error = str(exc)
+            error = user_message(exc)
     return render_template("scorecard/index.html", asked=asked, scores=scores, label=label, notes=notes,
                            chart=chart, error=error, sources=sources,
                            defaults=explore.SCORECARD_DEFAULTS), 400 if error else 200

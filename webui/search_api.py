@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from flask import Blueprint, jsonify, request
 
-from library.search import service
+from library.search.substitutes import CAUTION
 from webui import db_session, explore, queries
 from webui.api import json_body
 from webui.disagreements import store_flag
@@ -57,7 +57,7 @@ def disagreements():
     page, pages = explore.page_argument(request.args, len(ordered), per_page)
     rows = ordered[(page - 1) * per_page: page * per_page]
     return jsonify(rows=[explore.disagreement_row(r) for r in rows], total=len(ordered), page=page,
-                   per_page=per_page, pages=pages, observed=label, caution=service.CAUTION)
+                   per_page=per_page, pages=pages, observed=label, caution=CAUTION)
 
 
 @blueprint.get("/scorecard")

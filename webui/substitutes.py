@@ -7,13 +7,14 @@ from flask import Blueprint, Response, render_template, request
 
 from library import depiction
 from library.errors import OlibraError
-from library.search import service
-from library.search.index import METRICS
+from library.search import metrics
+from library.search.spectra import fingerprint_curve
 from webui import charts, explore
+from webui.errors import user_message
 
 blueprint = Blueprint("substitutes", __name__)
 
-CSV_COLUMNS = ["rank", "id", "name", "cas"] + [c for m in explore.SCORE_COLUMNS for c in (m, f"{m}_rank")] + [
+CSV_COLUMNS = ["rank", "id", "name", "cas"] + [c for m in metrics.names() for c in (m, f"{m}_rank")] + [
     "odors", "molecular_weight", "logp", "status", "restricted", "smiles"]
 
 
@@ -24,24 +25,24 @@ def index():
     try:
         asked = explore.substitute_request(request.args)
     except OlibraError as exc:
-        asked, error = explore.SubstituteRequest(), str(exc)
+        asked, error = explore.SubstituteRequest(), user_message(exc)
     if error is None and asked.asked:
         try:
             outcome, cat_index = explore.find_substitutes(asked)
             if outcome.query.material_id is not None:
                 query_points = explore.preview_points(cat_index, outcome.query.material_id)
             else:
-                curve = service.fingerprint_curve(cat_index, query=outcome.query)
+                curve = fingerprint_curve(cat_index, query=outcome.query)
                 query_points = None if curve is None else charts.preview_points(*curve)
             for c in outcome.candidates:
                 previews[c.material.id] = charts.preview_svg(
                     explore.preview_points(cat_index, c.material.id), query_points,
                     label=f"spectrum of {c.material.name} (color) over the query's (gray)")
         except OlibraError as exc:
-            error = str(exc)
+            error = user_message(exc)
     status = 400 if error else 200
     return render_template("substitutes/index.html", asked=asked, outcome=outcome, error=error,
-                           previews=previews, metrics=METRICS, score_columns=explore.SCORE_COLUMNS,
+                           previews=previews, metrics=metrics.metrics(indexed=True), score_columns=metrics.names(),
                            args=request.args), status
 
 

@@ -20,7 +20,7 @@ from sqlalchemy.orm import Session, sessionmaker
 from werkzeug.security import check_password_hash, generate_password_hash
 
 from library.catalogue.models import USER_ROLES, AuditEntry, User
-from library.errors import OlibraError
+from library.errors import OlibraError, Remedy
 
 MIN_PASSWORD_CHARS = 8
 MAX_PASSWORD_CHARS = 200
@@ -96,7 +96,7 @@ def authenticate(session: Session, username: str, password: str) -> User | None:
 def set_password(session: Session, username: str, password: str, *, actor: str = "olibra") -> User:
     user = find_user(session, username)
     if user is None:
-        raise AccountError(f"no user {username!r}; see `olibra user list`")
+        raise AccountError(f"no user {username!r}; check the user name", remedy=Remedy.LIST_USERS)
     user.password_hash = generate_password_hash(check_password(password))
     session.add(AuditEntry(actor=actor, action="update", entity="user", entity_id=user.id,
                            field="password", new_value="(changed)"))

@@ -24,7 +24,7 @@ from library.catalogue.models import (
     Provenance,
     Synonym,
 )
-from library.errors import OlibraError
+from library.errors import OlibraError, Remedy
 from library.structures import StandardStructure, check_cas, standardize
 
 SEED_DIR = Path(__file__).resolve().parents[2] / "seed_catalog"
@@ -219,8 +219,8 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
     unknown = [o.term for o in draft.odors if o.term not in terms]
     if unknown:
         raise CurationError(
-            f"odor descriptor(s) {', '.join(unknown)} not in the vocabulary; "
-            "see `olibra vocabulary list` or add them with `olibra vocabulary add`")
+            f"odor descriptor(s) {', '.join(unknown)} not in the vocabulary; use vocabulary terms or add "
+            "these to the vocabulary first", remedy=Remedy.VOCABULARY)
     if draft.status not in MATERIAL_STATUSES:
         raise CurationError(f"status {draft.status!r} is not one of {', '.join(MATERIAL_STATUSES)}")
     s = draft.structure
@@ -271,7 +271,8 @@ def find_material(session: Session, key: str) -> Material:
     if len(candidates) > 1:
         names = ", ".join(f"#{m.id} {m.preferred_name}" for m in candidates)
         raise CurationError(f"{key!r} matches several materials ({names}); use the id")
-    raise CurationError(f"no material matches {key!r}; try `olibra list` to see names and ids")
+    raise CurationError(f"no material matches {key!r}; check the name, synonym, CAS RN, InChIKey or id",
+                        remedy=Remedy.FIND_MATERIAL)
 
 
 def audit(session: Session, *, actor: str, action: str, material: Material, field_name: str,

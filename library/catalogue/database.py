@@ -24,7 +24,7 @@ from sqlalchemy.exc import ArgumentError, NoSuchModuleError, OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
 from library.catalogue.models import BackgroundJob, CatalogueState, User
-from library.errors import OlibraError
+from library.errors import OlibraError, Remedy
 
 ENVIRONMENT_VARIABLE = "OLIBRA_DB"
 DEFAULT_FILE_NAME = "catalogue.sqlite"
@@ -130,11 +130,12 @@ def check_schema(engine: Engine) -> None:
         raise CatalogueError(f"cannot open catalogue {describe_url(str(engine.url))}: {exc.orig}") from None
     if current is None:
         raise CatalogueError(
-            f"{describe_url(str(engine.url))} holds no olibra catalogue yet; run `olibra init` first")
+            f"{describe_url(str(engine.url))} holds no olibra catalogue yet; create it first",
+            remedy=Remedy.INIT_CATALOGUE)
     if current != head_revision():
         raise CatalogueError(
-            f"catalogue schema is at revision {current}, this olibra needs {head_revision()}; "
-            "run `olibra init` to upgrade it")
+            f"catalogue schema is at revision {current}, this olibra needs {head_revision()}; upgrade it first",
+            remedy=Remedy.INIT_CATALOGUE)
 
 
 # Rows that are not catalogue content: changing them leaves the revision alone.

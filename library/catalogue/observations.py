@@ -24,6 +24,7 @@ from sqlalchemy import delete, select
 from sqlalchemy.orm import Session
 
 from library.catalogue.curation import CurationError, Source, current_actor, find_material
+from library.errors import Remedy
 from library.catalogue.models import AuditEntry, Material, Observation, ObservationSet, PairFlag
 from library.catalogue.transfer import ImportFileError, _decode
 
@@ -164,12 +165,17 @@ def import_observations(session: Session, data: bytes, label: str, *, set_name: 
     return report
 
 
+def set_names(session: Session) -> list[str]:
+    """Names of the stored observation data sets, alphabetically."""
+    return list(session.scalars(select(ObservationSet.name).order_by(ObservationSet.name)))
+
+
 def observation_profiles(session: Session, set_name: str) -> tuple[list[int], list[str], np.ndarray]:
     """(material ids, variables, matrix materials x variables with NaN where not measured)."""
     observation_set = session.scalar(select(ObservationSet).where(ObservationSet.name == set_name))
     if observation_set is None:
         names = ", ".join(session.scalars(select(ObservationSet.name))) or "none yet"
-        raise CurationError(f"no data set named {set_name!r} (data sets: {names})")
+        raise CurationError(f"no data set named {set_name!r} (data sets: {names})", remedy=Remedy.IMPORT_OBSERVATIONS)
     rows = session.execute(select(Observation.material_id, Observation.variable, Observation.value)
                            .where(Observation.set_id == observation_set.id)).all()
     ids = sorted({r[0] for r in rows})

@@ -79,7 +79,7 @@ class ImportReport:
         text = (f"{self.count('added')} added, {self.count('present')} already present, "
                 f"{self.count('rejected')} rejected")
         if self.rejected and not self.committed:
-            text += "; nothing was imported (fix the rows or use --keep-good to store the good rows)"
+            text += "; nothing was imported (fix the rejected rows, or keep the good rows to store those)"
         return text
 
 

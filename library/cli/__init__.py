@@ -15,9 +15,25 @@ import traceback
 
 from sqlalchemy.exc import OperationalError, SQLAlchemyError
 
-from library.errors import OlibraError
+from library.errors import OlibraError, Remedy
 
 EXIT_USER_ERROR = 2
+# What the command line suggests for each remedy the core names (the web has its own hints).
+HINTS = {
+    Remedy.COMPUTE_RECORDS: "run `olibra compute all`",
+    Remedy.INIT_CATALOGUE: "run `olibra init`",
+    Remedy.FIND_MATERIAL: "`olibra list` shows names and ids",
+    Remedy.ADD_MATERIAL: "add it with `olibra add` (or search with --store-as NAME)",
+    Remedy.VOCABULARY: "see `olibra vocabulary list`, add terms with `olibra vocabulary add`",
+    Remedy.IMPORT_OBSERVATIONS: "import it with `olibra observations import`",
+    Remedy.LIST_USERS: "see `olibra user list`",
+}
+
+
+def error_line(exc: OlibraError) -> str:
+    """The one line the command line prints for a user error: the message and, if any, the hint."""
+    hint = HINTS.get(exc.remedy) if exc.remedy else None
+    return f"olibra: error: {exc}" + (f" ({hint})" if hint else "")
 EXIT_INTERRUPTED = 130
 EXIT_BUG = 70
 
@@ -56,7 +72,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.handler(args) or 0)
     except OlibraError as exc:
-        print(f"olibra: error: {exc}", file=sys.stderr)
+        print(error_line(exc), file=sys.stderr)
         return EXIT_USER_ERROR
     except KeyboardInterrupt:
         print("olibra: interrupted; nothing half-written was kept", file=sys.stderr)

@@ -1,58 +1,51 @@
-"""`olibra bench`: benchmark commands that print figures (never timed assertions)."""
+"""`olibra bench`: benchmark commands that print figures (never timed assertions).
+
+The benchmarks live in the `benchmarks` package, loaded only when a benchmark runs.
+"""
 
 from __future__ import annotations
 
-import os
-import platform
-
-from library.benchmark_set import benchmark_materials
-
 
 def _header(what: str, processes: int | None) -> None:
-    print(f"olibra bench {what}: {platform.machine()} {os.cpu_count()} core(s), "
-          f"{processes or os.cpu_count()} process(es), Python {platform.python_version()}")
+    from benchmarks.materials import header
 
-
-def _benchmark_smiles(what: str, processes: int | None) -> list[str]:
-    materials = benchmark_materials()
-    _header(what, processes)
-    print(f"benchmark set: {len(materials)} seed materials with at most 25 heavy atoms")
-    return [smiles for _, smiles in materials]
+    print(header(what, processes))
 
 
 def cmd_bench_shape(args) -> int:
-    from library import shape_bench
+    from benchmarks import shape
 
-    shape_bench.run(_benchmark_smiles("shape", args.processes), processes=args.processes)
+    _header("shape", args.processes)
+    shape.run(processes=args.processes)
     return 0
 
 
 def cmd_bench_vibration(args) -> int:
-    from library.vibration import bench
+    from benchmarks import vibration
 
-    bench.run(_benchmark_smiles("vibration", args.processes), processes=args.processes)
+    _header("vibration", args.processes)
+    vibration.run(processes=args.processes)
     return 0
 
 
 def cmd_bench_search(args) -> int:
+    from benchmarks import search
     from library.cli.catalogue_commands import open_catalogue
-    from library.search import bench, service
 
     _header("search", None)
     sizes = tuple(args.sizes) if args.sizes else (10_000, 100_000, 1_000_000)
-    bench.run(sizes)
+    search.run(sizes)
     if args.skip_catalogue:
         return 0
-    catalogue = open_catalogue(args)
-    service.overlay_recall_benchmark(catalogue, queries=args.queries)
+    search.overlay_recall(open_catalogue(args), queries=args.queries)
     return 0
 
 
 def cmd_bench_web(args) -> int:
-    from webui import bench
+    from benchmarks import web
 
     _header("web", None)
-    bench.run(args.db)
+    web.run(args.db)
     return 0
 
 

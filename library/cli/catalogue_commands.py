@@ -158,7 +158,8 @@ def cmd_import(args) -> int:
     if not args.quiet:
         for r in shown:
             print(f"row {r.row}: {r.status}: {r.name}: {r.message}")
-    print(report.summary())
+    print(report.summary() + (" (--keep-good stores the good rows)" if report.rejected and not report.committed
+                              else ""))
     return 0 if not report.rejected else 1
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from library import computations
+from library.vibration import engines
 from library.catalogue import jobs
 from library.catalogue.records import record_state
 from library.cli.catalogue_commands import open_catalogue
@@ -58,8 +59,8 @@ def register(commands) -> None:
     p.add_argument("materials", nargs="*", metavar="MATERIAL",
                    help="only these materials (id, name, synonym, CAS RN or InChIKey)")
     p.add_argument("--all", action="store_true", help="recompute every active material, even if current")
-    p.add_argument("--engine", choices=computations.VIBRATION_ENGINES, default="mmff",
-                   help="vibration engine: mmff (MMFF94, default) or gfn2 (GFN2-xTB, needs olibra[xtb])")
+    p.add_argument("--engine", choices=engines.keys(), default=engines.DEFAULT_ENGINE,
+                   help=f"vibration engine (default {engines.DEFAULT_ENGINE}): {engines.help_text()}")
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(handler=cmd_compute)

@@ -58,10 +58,10 @@ def cmd_demo(args) -> int:
 def first_search(catalogue, args) -> None:
     """Show what olibra is for: substitutes for a material a fictional brief must replace."""
     from library.cli.search_commands import print_substitutes
-    from library.search import service
+    from library.search.substitutes import find_substitutes
 
     print()
-    outcome = service.find_substitutes(catalogue, DEMO_QUERY, metric="blend", weight=0.5, k=8)
+    outcome = find_substitutes(catalogue, DEMO_QUERY, metric="blend", weight=0.5, k=8)
     print_substitutes(outcome)
     print(f"\nnext: point olibra at this catalogue and follow seed_catalog/DEMO.md, e.g.\n"
           f"  export OLIBRA_DB={catalogue.url}\n"

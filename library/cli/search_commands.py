@@ -11,11 +11,21 @@ from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
-from library.search import service
+from library.search import metrics
+from library.search.disagreement_policy import find_disagreement_rows
 from library.search.disagreements import DIRECTIONS
-from library.search.index import METRICS
-
-SCORE_COLUMNS = ("shape", "overlay", "vibration", "blend", "structure")
+from library.search.evidence import run_scorecard
+from library.search.pairs import compare
+from library.search.spectra import material_spectrum
+from library.search.substitutes import (
+    CAUTION,
+    DEFAULT_RERANK_DEPTH,
+    RERANK_POOL,
+    SearchOutcome,
+    build_filter,
+    find_substitutes,
+)
+from library.vibration import engines
 
 
 def _range(values):
@@ -45,25 +55,25 @@ def cmd_search(args) -> int:
     catalogue = open_catalogue(args)
     if args.store_as:
         args.query = store_query(catalogue, args)
-    filters = service.build_filter(
+    filters = build_filter(
         mw_range=_range(args.mw), logp_range=_range(args.logp), must_have=args.with_odor or (),
         must_not_have=args.without_odor or (), include_retired=args.include_retired,
         include_restricted=args.include_restricted)
-    outcome = service.find_substitutes(
+    outcome = find_substitutes(
         catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
         rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine)
     print_substitutes(outcome, fmt=args.format, explain=args.explain, rerank_depth=args.rerank_depth)
     return 0
 
 
-def print_substitutes(outcome: service.SearchOutcome, *, fmt: str = "table", explain: bool = False,
-                      rerank_depth: int = service.DEFAULT_RERANK_DEPTH) -> None:
+def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bool = False,
+                      rerank_depth: int = DEFAULT_RERANK_DEPTH) -> None:
     """Candidates with every metric's score and rank (table: 'score (rank)')."""
     rows = []
     for c in outcome.candidates:
         row = {"rank": c.rank, "id": c.material.id, "name": c.material.name,
                "odor": ", ".join(c.material.odors), "smiles": c.material.smiles}
-        for metric in SCORE_COLUMNS:
+        for metric in metrics.names():
             if metric in c.scores:
                 if fmt == "table":
                     row[metric] = f"{c.scores[metric]:.3f} ({c.ranks.get(metric, '-')})"
@@ -73,7 +83,7 @@ def print_substitutes(outcome: service.SearchOutcome, *, fmt: str = "table", exp
         if c.explanation:
             row.update(_explanation_fields(c.explanation))
         rows.append(row)
-    present = [m for m in SCORE_COLUMNS if any(m in r for r in rows)]
+    present = [m for m in metrics.names() if any(m in r for r in rows)]
     columns = ["rank", "id", "name"] + present
     if fmt != "table":
         columns += [f"{m}_rank" for m in present] + ["odor", "smiles"]
@@ -87,7 +97,7 @@ def print_substitutes(outcome: service.SearchOutcome, *, fmt: str = "table", exp
     emit(rows, columns, fmt)
     if fmt == "table":
         if outcome.metric == "shape" and rerank_depth:
-            print(f"(of the top {service.RERANK_POOL * rerank_depth} by moments, the {rerank_depth} with the most "
+            print(f"(of the top {RERANK_POOL * rerank_depth} by moments, the {rerank_depth} with the most "
                   "alike conformer pair are ordered by Gaussian overlay; the rest follow without it)")
         print("each cell: similarity (0-1) and, in brackets, the candidate's rank under that metric")
         for note in outcome.notes:
@@ -118,7 +128,7 @@ def bands_dict(bands) -> dict:
 
 def cmd_compare(args) -> int:
     catalogue = open_catalogue(args)
-    result = service.compare(catalogue, args.a, args.b, weight=args.weight, vibration_engine=args.engine)
+    result = compare(catalogue, args.a, args.b, weight=args.weight, vibration_engine=args.engine)
     bands = result.explanation["bands"]
     if args.format == "json":
         print(json.dumps({
@@ -129,9 +139,8 @@ def cmd_compare(args) -> int:
             "bands": bands_dict(bands)}, indent=2, default=float))
         return 0
     print(f"#{result.a.id} {result.a.name}  vs  #{result.b.id} {result.b.name}")
-    for metric in SCORE_COLUMNS:
-        if metric in result.scores:
-            print(f"  {metric:<10} {result.scores[metric]:.4f}")
+    for metric, value in result.scores.items():
+        print(f"  {metric:<10} {value:.4f}")
     print(f"  (blend weight {result.weight}; overlay Tversky {result.explanation['overlay_tversky']:.4f}, "
           f"volume ratio {result.explanation['volume_ratio']:.3f})")
     print(f"  main bands matched within {bands.tolerance_cm1:g} cm-1: {len(bands.pairs)} "
@@ -139,14 +148,14 @@ def cmd_compare(args) -> int:
           f"only in {result.b.name}: {len(bands.unmatched_b)}")
     for line in band_lines(bands, args.bands):
         print(f"    {line}")
-    print(f"caution: {service.CAUTION}")
+    print(f"caution: {CAUTION}")
     return 0
 
 
 def cmd_disagreements(args) -> int:
     catalogue = open_catalogue(args)
     observation = None if args.observed == "none" else args.observed
-    rows, label = service.find_disagreement_rows(
+    rows, label = find_disagreement_rows(
         catalogue, k=args.neighbors, min_shape=args.min_shape, max_vibration=args.max_vibration,
         min_vibration=args.min_vibration, max_shape=args.max_shape, direction=args.direction,
         observation=observation, include_retired=args.include_retired, vibration_engine=args.engine)
@@ -207,7 +216,7 @@ def cmd_observations(args) -> int:
 
 def cmd_scorecard(args) -> int:
     catalogue = open_catalogue(args)
-    scores, label, notes = service.run_scorecard(
+    scores, label, notes = run_scorecard(
         catalogue, observation=args.observed, k=args.k, permutations=args.permutations,
         resamples=args.resamples, weight=args.weight, vibration_engine=args.engine)
     rows = [{"metric": s.metric, "materials": s.materials, "pairs": s.pairs, "spearman": round(s.spearman, 4),
@@ -227,10 +236,10 @@ def cmd_spectrum(args) -> int:
     from library.vibration.plot import draw_spectrum
 
     catalogue = open_catalogue(args)
-    name, spectrum = service.material_spectrum(catalogue, args.material, vibration_engine=args.engine)
+    name, spectrum = material_spectrum(catalogue, args.material, vibration_engine=args.engine)
     other, labels = None, (name, "")
     if args.against:
-        other_name, other = service.material_spectrum(catalogue, args.against, vibration_engine=args.engine)
+        other_name, other = material_spectrum(catalogue, args.against, vibration_engine=args.engine)
         labels = (name, other_name)
     try:
         path = draw_spectrum(spectrum, args.out, other=other, sigma_cm1=args.sigma, labels=labels,
@@ -243,9 +252,11 @@ def cmd_spectrum(args) -> int:
 
 
 def _add_common(p, *, weight=True, fmt=True) -> None:
-    p.add_argument("--engine", choices=("mmff", "gfn2"), default="mmff", help="vibration engine of the records")
+    p.add_argument("--engine", choices=engines.keys(), default=engines.DEFAULT_ENGINE,
+                   help=f"vibration engine of the records (default {engines.DEFAULT_ENGINE})")
     if weight:
-        p.add_argument("--weight", type=float, default=0.5, help="shape weight w of the blend (0-1, default 0.5)")
+        p.add_argument("--weight", type=float, default=metrics.DEFAULT_WEIGHT,
+                       help=f"shape weight w of the blend (0-1, default {metrics.DEFAULT_WEIGHT})")
     if fmt:
         p.add_argument("--format", choices=FORMATS, default="table")
 
@@ -253,7 +264,8 @@ def _add_common(p, *, weight=True, fmt=True) -> None:
 def register(commands) -> None:
     p = commands.add_parser("search", help="rank substitutes for a material or a new structure")
     p.add_argument("query", help="material (name, id, CAS RN, InChIKey) or a structure (SMILES, InChI)")
-    p.add_argument("--metric", choices=METRICS, default="blend")
+    p.add_argument("--metric", choices=metrics.names(indexed=True), default="blend",
+                   help="; ".join(f"{m.name}: {m.description}" for m in metrics.metrics(indexed=True)))
     p.add_argument("-k", type=int, default=10, help="number of candidates (default 10)")
     p.add_argument("--mw", type=float, nargs=2, metavar=("LOW", "HIGH"), help="molecular weight range, g/mol")
     p.add_argument("--logp", type=float, nargs=2, metavar=("LOW", "HIGH"), help="computed logP range")
@@ -261,9 +273,9 @@ def register(commands) -> None:
     p.add_argument("--without-odor", nargs="+", metavar="TERM", help="candidates must not have these")
     p.add_argument("--include-retired", action="store_true")
     p.add_argument("--include-restricted", action="store_true")
-    p.add_argument("--rerank-depth", type=int, default=service.DEFAULT_RERANK_DEPTH,
+    p.add_argument("--rerank-depth", type=int, default=DEFAULT_RERANK_DEPTH,
                    help="shape metric: order this many candidates by Gaussian overlay (default "
-                        f"{service.DEFAULT_RERANK_DEPTH}; 0: moments only)")
+                        f"{DEFAULT_RERANK_DEPTH}; 0: moments only)")
     p.add_argument("--explain", action="store_true", help="add volume ratio and band matching per candidate")
     p.add_argument("--store-as", metavar="NAME",
                    help="a new structure is added to the catalogue under NAME (with its records) before the search")

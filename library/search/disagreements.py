@@ -160,17 +160,8 @@ def find_disagreements(
         pair = pairs[i]
         id_a, id_b = ids[pair[0]].item(), ids[pair[1]].item()
         value = _observed(observed, id_a, id_b)
-        alike = None
-        sides = None
-        if value is not None:
-            if value >= observed_alike:
-                alike = True
-            elif value <= observed_unalike:
-                alike = False
-            if alike is not None:
-                says_alike = "shape" if labels[i] == SHAPE_NOT_VIBRATION else "vibration"
-                says_unalike = "vibration" if says_alike == "shape" else "shape"
-                sides = says_alike if alike else says_unalike
+        alike, sides = sides_with(str(labels[i]), value, observed_alike=observed_alike,
+                                  observed_unalike=observed_unalike)
         found.append(
             Disagreement(
                 id_a=id_a,
@@ -189,6 +180,24 @@ def find_disagreements(
         )
     found.sort(key=lambda d: (-d.score, str(d.id_a), str(d.id_b)))
     return found[:limit] if limit is not None else found
+
+
+def sides_with(direction: str, observed: float | None, *, observed_alike: float = 0.5,
+               observed_unalike: float = 0.2) -> tuple[bool | None, str | None]:
+    """(observed alike?, the metric the observation sides with) for a pair disagreeing in `direction`.
+
+    A pair observed alike (>= `observed_alike`) sides with the metric that calls it alike; one
+    observed unalike (<= `observed_unalike`) with the metric that tells it apart; in between, or
+    unobserved, with neither.
+    """
+    if observed is None:
+        return None, None
+    alike = True if observed >= observed_alike else False if observed <= observed_unalike else None
+    if alike is None:
+        return None, None
+    says_alike = "shape" if direction == SHAPE_NOT_VIBRATION else "vibration"
+    says_unalike = "vibration" if says_alike == "shape" else "shape"
+    return alike, says_alike if alike else says_unalike
 
 
 def _observed(observed, id_a, id_b) -> float | None:

@@ -1,27 +1,22 @@
-"""Similarity index over the catalogue: shape, vibration, blend and structure metrics.
+"""Similarity index over the catalogue: every registered metric, ranked in memory.
 
-All similarities are on a 0-1 scale, larger meaning more alike:
+The metrics and their formulas live in :mod:`library.search.metrics`; this module keeps the
+per-material feature matrices (float32 shape values, unit-norm fingerprints, packed structure
+bits), filters, and ranks with the metrics' kernels. Everything loops over the metric registry.
 
-* shape: USR similarity ``S = 1 / (1 + sum(|a - b|) / n)`` over the shape vector of
-  length ``n`` (J. Comput. Chem. 28, 1711 (2007)); the shape vector holds the USRCAT
-  moments (J. Cheminform. 4, 27 (2012)) followed by the chirality-sensitive moments.
-* vibration: cosine of the vibrational fingerprints (EVA descriptor on the
-  0-4000 cm^-1 grid, J. Comput.-Aided Mol. Des. 11, 143 (1997)). Fingerprints are
-  non-negative, so the cosine lies in 0-1.
-* blend: ``weight * shape + (1 - weight) * vibration`` with ``weight`` in 0-1.
-* structure: Tanimoto coefficient of Morgan radius-2, 2048-bit fingerprints.
+Memory: for N materials with an 801-value fingerprint and a 72-value shape vector the index holds
+about ``N * (801 + 72) * 4`` bytes (3.5 GB at one million materials) plus, when compression is
+on, ``N * pca_components * 4`` bytes for the compressed fingerprints and 256 bytes per material
+for the structure bits. No N x N matrix is ever formed, except by :meth:`similarity_matrix`,
+which is for a few thousand materials at most.
 
-Memory: the index keeps float32 matrices only. For N materials with an 801-value
-fingerprint and a 72-value shape vector that is about ``N * (801 + 72) * 4`` bytes
-(3.5 GB at one million materials) plus, when compression is on,
-``N * pca_components * 4`` bytes for the compressed fingerprints and 256 bytes per
-material for the structure bits. No N x N matrix is ever formed.
+Speed: metrics with a first stage (vibration, blend) run in two stages when ``pca_components`` is
+set: the first stage scores every material with the PCA-compressed fingerprints (exactly
+``q . x = (q - m) . (x - m) + q . m + x . m - m . m`` with the centered part projected), keeps the
+best few hundred, and a second stage re-scores those exactly. Other metrics are always exact.
 
-Speed: vibration and blend queries run in two stages when ``pca_components`` is set:
-a first stage scores every material with the PCA-compressed fingerprints (exactly
-``q . x = (q - m) . (x - m) + q . m + x . m - m . m`` with the centered part
-projected), keeps the best few hundred, and a second stage re-scores those exactly.
-Shape and structure scores are always exact.
+Threads: a fitted (or loaded) index is read-only apart from one cache of coarse groupings for
+neighbor scans, which is filled under a lock, so one index may answer queries from many threads.
 """
 
 from __future__ import annotations
@@ -29,6 +24,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import threading
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
@@ -36,19 +32,26 @@ from pathlib import Path
 
 import numpy as np
 
-METRICS = ("shape", "vibration", "blend", "structure")
+from library.search import metrics as metric_registry
+from library.search.metrics import Block, check_weight
+
 RANK_MODES = ("exact", "estimated", "none")
-MORGAN_RADIUS = 2
-MORGAN_BITS = 2048
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
 SHAPE_PROBE_SHARE = 12  # neighbors(): groups probed = clusters / share, unless `probes` is given
 VIBRATION_PROBE_SHARE = 3
 PROPERTY_KEYS = ("molecular_weight", "logp", "descriptors", "status", "restricted")
 STATUSES = ("active", "retired")
+CONFIG_KEYS = ("pca_components", "pca_sample_size", "candidate_multiplier", "min_candidates",
+               "neighbor_candidates", "exact_below", "clusters", "probes", "n_jobs", "random_state")
 
 #: Callback that re-scores candidates, e.g. by Gaussian shape overlay:
 #: ``(query_id, candidate_ids) -> scores in 0-1``, one per candidate, same order.
 OverlayScorer = Callable[[object, Sequence[object]], Sequence[float]]
+
+
+def indexed_metrics() -> tuple[str, ...]:
+    """Names of the metrics the index can rank by (the registry's indexed metrics)."""
+    return metric_registry.names(indexed=True)
 
 
 class RevisionMismatchError(ValueError):
@@ -125,65 +128,6 @@ class NeighborLists:
     exact: bool
 
 
-def morgan_bits(smiles: str) -> np.ndarray:
-    """Packed Morgan radius-2, 2048-bit fingerprint (256 uint8, big-endian bit order) of a SMILES."""
-    from rdkit import Chem
-    from rdkit.Chem import rdFingerprintGenerator
-
-    mol = Chem.MolFromSmiles(smiles) if isinstance(smiles, str) else None
-    if mol is None:
-        raise ValueError(f"structure could not be read as SMILES: {smiles!r}")
-    generator = rdFingerprintGenerator.GetMorganGenerator(radius=MORGAN_RADIUS, fpSize=MORGAN_BITS)
-    return np.packbits(generator.GetFingerprintAsNumPy(mol).astype(bool))
-
-
-def _pack_structure(value, n: int | None, name: str) -> np.ndarray:
-    """SMILES strings, 0/1 arrays of 2048 bits or packed 256-byte arrays -> (n, 256) uint8."""
-    if isinstance(value, str):
-        return morgan_bits(value)[None, :]
-    if not isinstance(value, np.ndarray) and len(value) and isinstance(value[0], str):
-        packed = np.empty((len(value), MORGAN_BITS // 8), np.uint8)
-        for i, smiles in enumerate(value):
-            try:
-                packed[i] = morgan_bits(smiles)
-            except ValueError as error:
-                raise ValueError(f"{name}[{i}]: {error}") from None
-        array = packed
-    else:
-        array = np.asarray(value)
-        if array.ndim == 1:
-            array = array[None, :]
-        if array.ndim != 2:
-            raise ValueError(f"{name} must be SMILES strings or a 2-D bit array, got shape {array.shape}")
-        if array.shape[1] == MORGAN_BITS:
-            if not np.isin(array, (0, 1)).all():
-                raise ValueError(f"{name} has {MORGAN_BITS} columns, so it must hold only 0/1 bits")
-            array = np.packbits(array.astype(bool), axis=1)
-        elif array.shape[1] == MORGAN_BITS // 8 and array.dtype == np.uint8:
-            array = array.copy()
-        else:
-            raise ValueError(
-                f"{name} must have {MORGAN_BITS} 0/1 columns or {MORGAN_BITS // 8} packed uint8 columns, "
-                f"got shape {array.shape} dtype {array.dtype}"
-            )
-    if n is not None and array.shape[0] != n:
-        raise ValueError(f"{name} has {array.shape[0]} rows but there are {n} materials")
-    return np.ascontiguousarray(array, dtype=np.uint8)
-
-
-def _float_matrix(value, name: str, n: int | None = None) -> np.ndarray:
-    array = np.asarray(value, dtype=np.float32)
-    if array.ndim != 2:
-        raise ValueError(f"{name} must be a 2-D array (materials x values), got shape {array.shape}")
-    if n is not None and array.shape[0] != n:
-        raise ValueError(f"{name} has {array.shape[0]} rows but there are {n} materials")
-    if array.shape[1] == 0:
-        raise ValueError(f"{name} has no columns")
-    if not np.isfinite(array).all():
-        raise ValueError(f"{name} contains NaN or infinite values")
-    return np.ascontiguousarray(array)
-
-
 def _ordered_top(scores: np.ndarray, count: int) -> np.ndarray:
     """Indices of the ``count`` largest finite scores, best first, ties by lower index."""
     valid = int(np.count_nonzero(scores > -np.inf))
@@ -216,7 +160,7 @@ def _row_top(scores: np.ndarray, count: int) -> np.ndarray:
 
 
 class SimilarityIndex:
-    """Ranks catalogue materials by shape, vibration, blended or structure similarity.
+    """Ranks catalogue materials under every registered metric whose features it holds.
 
     Parameters
     ----------
@@ -285,21 +229,24 @@ class SimilarityIndex:
     def fit(
         self,
         ids: Sequence,
-        shape_vectors,
-        fingerprints,
+        shape_vectors=None,
+        fingerprints=None,
         structure_bits=None,
         properties: Mapping[str, Sequence] | None = None,
+        *,
+        features: Mapping[str, object] | None = None,
     ) -> "SimilarityIndex":
         """Build the index.
 
-        ``ids``: one unique identifier per material. ``shape_vectors``: (N, n) shape
-        moments (angstrom-based moments, as produced by the shape module).
-        ``fingerprints``: (N, G) non-negative vibrational fingerprints on a fixed
-        cm^-1 grid; they are L2-normalized once here. ``structure_bits``: SMILES
-        strings, (N, 2048) 0/1 bits or (N, 256) packed uint8, optional.
-        ``properties``: optional mapping with any of ``molecular_weight`` (g/mol),
-        ``logp`` (dimensionless), ``descriptors`` (a set of odor descriptor words per
-        material), ``status`` ("active"/"retired") and ``restricted`` (bool).
+        ``ids``: one unique identifier per material. Features, one row per material (see
+        :data:`library.search.metrics.FEATURES`): ``shape_vectors`` (N, n) shape moments
+        (angstrom-based moments, as produced by the shape module); ``fingerprints`` (N, G)
+        non-negative vibrational fingerprints on a fixed cm^-1 grid, L2-normalized once here;
+        ``structure_bits``: SMILES strings, (N, 2048) 0/1 bits or (N, 256) packed uint8; any
+        other registered feature by name in ``features``. ``properties``: optional mapping with
+        any of ``molecular_weight`` (g/mol), ``logp`` (dimensionless), ``descriptors`` (a set of
+        odor descriptor words per material), ``status`` ("active"/"retired") and ``restricted``
+        (bool).
         """
         self._check_config()
         ids_array = np.asarray(ids)
@@ -310,38 +257,51 @@ class SimilarityIndex:
         n = ids_array.size
         if np.unique(ids_array).size != n:
             raise ValueError("ids must be unique; duplicates found")
-        shape = _float_matrix(shape_vectors, "shape_vectors", n)
-        source = fingerprints
-        fingerprints = _float_matrix(fingerprints, "fingerprints", n)
-        if (fingerprints < 0).any():
-            raise ValueError("fingerprints must be non-negative (Gaussian-smoothed spectra)")
-        if isinstance(source, np.ndarray) and np.shares_memory(fingerprints, source):
-            fingerprints = fingerprints.copy()  # normalized in place below; leave the caller's array alone
-        norms = np.sqrt(np.einsum("ij,ij->i", fingerprints, fingerprints, dtype=np.float64))
-        empty = np.flatnonzero(norms == 0)
-        if empty.size:
-            raise ValueError(f"fingerprints of ids {ids_array[empty[:5]].tolist()} are all zero; cosine is undefined")
-        fingerprints /= norms.astype(np.float32)[:, None]
-
+        given = dict(features or {})
+        for name, value in (("shape", shape_vectors), ("fingerprint", fingerprints), ("structure", structure_bits)):
+            if value is not None:
+                given[name] = value
+        if "shape" not in given or "fingerprint" not in given:
+            raise ValueError("fit needs shape_vectors and fingerprints (one row per material)")
+        labels = {"shape": "shape_vectors", "fingerprint": "fingerprints", "structure": "structure_bits"}
+        arrays: dict[str, np.ndarray] = {}
+        for name, value in given.items():
+            prepared = metric_registry.prepare_feature(name, value, labels.get(name, name))
+            if len(prepared[name]) != n:
+                raise ValueError(f"{labels.get(name, name)} has {len(prepared[name])} rows but there are {n} materials")
+            arrays.update(prepared)
         self.ids_ = ids_array
-        self._row_of = None
-        self._shape_sums = None
-        self.shape_ = shape
-        self.fingerprints_ = fingerprints
-        self.structure_ = None if structure_bits is None else _pack_structure(structure_bits, n, "structure_bits")
-        self._set_structure_counts()
+        self.features_ = arrays
+        self.extra_ = {}
         self._set_properties(properties, n)
         self._fit_compression()
-        self._coarse = {}
+        self._finish()
         return self
 
-    def _set_structure_counts(self) -> None:
-        if self.structure_ is None:
-            self._structure_words = None
-            self._structure_counts = None
-            return
-        self._structure_words = self.structure_.view(np.uint64)
-        self._structure_counts = np.bitwise_count(self._structure_words).sum(axis=1, dtype=np.int32)
+    def _finish(self) -> None:
+        """Everything derived from the fitted arrays, computed now so that queries only read."""
+        self._row_of = {value: i for i, value in enumerate(self.ids_.tolist())}
+        self._arrays_of = {name: (name, *metric_registry.FEATURES[name].derived(values[:1]))
+                           for name, values in self.features_.items() if name in metric_registry.FEATURES}
+        self.extra_ = getattr(self, "extra_", {})
+        self._coarse: dict = {}
+        self._coarse_lock = threading.Lock()
+        self._catalogue = Block(self.features_, self)
+
+    @property
+    def shape_(self) -> np.ndarray:
+        """(N, n) float32 shape values."""
+        return self.features_["shape"]
+
+    @property
+    def fingerprints_(self) -> np.ndarray:
+        """(N, G) float32 unit-norm fingerprints."""
+        return self.features_["fingerprint"]
+
+    @property
+    def structure_(self) -> np.ndarray | None:
+        """(N, 256) packed Morgan bits, or None when no structures were given."""
+        return self.features_.get("structure")
 
     def _set_properties(self, properties, n: int) -> None:
         properties = dict(properties or {})
@@ -398,8 +358,10 @@ class SimilarityIndex:
         self._descriptor_column_of = {str(word): i for i, word in enumerate(vocabulary)}
 
     def _fit_compression(self) -> None:
-        n, width = self.fingerprints_.shape
+        fingerprints = self.fingerprints_
+        n, width = fingerprints.shape
         self.pca_mean_ = self.pca_basis_ = self.compressed_ = self.row_bias_ = None
+        self.mean_square_ = 0.0
         if self.pca_components is None or int(self.pca_components) >= min(n, width):
             return
         from sklearn.decomposition import PCA
@@ -407,17 +369,17 @@ class SimilarityIndex:
         rng = np.random.default_rng(self.random_state)
         sample = np.sort(rng.choice(n, size=min(n, self.pca_sample_size), replace=False))
         pca = PCA(n_components=int(self.pca_components), svd_solver="auto", random_state=self.random_state)
-        pca.fit(self.fingerprints_[sample])
+        pca.fit(fingerprints[sample])
         self.pca_mean_ = pca.mean_.astype(np.float32)
         self.pca_basis_ = np.ascontiguousarray(pca.components_.astype(np.float32))
         self.compressed_ = np.empty((n, self.pca_basis_.shape[0]), np.float32)
         self.row_bias_ = np.empty(n, np.float32)
         block = 65_536
         for start in range(0, n, block):
-            chunk = self.fingerprints_[start : start + block]
+            chunk = fingerprints[start : start + block]
             self.compressed_[start : start + block] = (chunk - self.pca_mean_) @ self.pca_basis_.T
             self.row_bias_[start : start + block] = chunk @ self.pca_mean_
-        self._mean_square = float(self.pca_mean_ @ self.pca_mean_)
+        self.mean_square_ = float(self.pca_mean_ @ self.pca_mean_)
 
     # ------------------------------------------------------------------ helpers
     def _check_fitted(self) -> None:
@@ -432,16 +394,19 @@ class SimilarityIndex:
 
     @property
     def nbytes(self) -> int:
-        """Bytes held by the index matrices (shape, fingerprints, compression, structure)."""
+        """Bytes held by the index matrices (features, derived arrays, compression)."""
         self._check_fitted()
-        arrays = (self.shape_, self.fingerprints_, self.compressed_, self.row_bias_, self.structure_)
+        arrays = [*self.features_.values(), self.compressed_, self.row_bias_]
         return int(sum(a.nbytes for a in arrays if a is not None))
+
+    def metrics(self) -> tuple[str, ...]:
+        """Names of the indexed metrics whose features this index holds, in display order."""
+        return tuple(m.name for m in metric_registry.metrics(indexed=True)
+                     if self._catalogue.has(metric_registry.features_of(m)))
 
     def row_of(self, material_id) -> int:
         """Catalogue row of ``material_id``; ValueError if it is not in the index."""
         self._check_fitted()
-        if self._row_of is None:
-            self._row_of = {value: i for i, value in enumerate(self.ids_.tolist())}
         try:
             return self._row_of[material_id.item() if isinstance(material_id, np.generic) else material_id]
         except (KeyError, TypeError):
@@ -453,6 +418,17 @@ class SimilarityIndex:
         except ValueError:
             return False
         return True
+
+    def block(self, rows, features: Iterable[str] | None = None) -> Block:
+        """The feature arrays (all, or only `features` and what is derived from them) of catalogue
+        rows `rows` (any integer index array; a 2-D array gives 2-D leading axes)."""
+        self._check_fitted()
+        rows = np.asarray(rows)
+        names = self.features_ if features is None else [a for f in features for a in self._arrays_of[f]]
+        return Block({name: self.features_[name][rows] for name in names}, self)
+
+    def _rows_for(self, metric, rows) -> Block:
+        return self.block(rows, metric_registry.features_of(metric))
 
     def filter_mask(self, filters: SearchFilter | None) -> np.ndarray | None:
         """Boolean mask of catalogue rows passing ``filters`` (None = all rows)."""
@@ -476,18 +452,19 @@ class SimilarityIndex:
         if filters.must_have or filters.must_not_have:
             if self._descriptor_columns is None:
                 raise ValueError("descriptor filters need the property 'descriptors', which was not given to fit()")
+            columns = self._descriptor_columns
             for word in filters.must_have:
                 col = self._descriptor_column_of.get(str(word))
                 if col is None:
                     mask[:] = False
                     continue
                 has = np.zeros(n, bool)
-                has[self._descriptor_columns.indices[self._descriptor_columns.indptr[col] : self._descriptor_columns.indptr[col + 1]]] = True
+                has[columns.indices[columns.indptr[col] : columns.indptr[col + 1]]] = True
                 mask &= has
             for word in filters.must_not_have:
                 col = self._descriptor_column_of.get(str(word))
                 if col is not None:
-                    mask[self._descriptor_columns.indices[self._descriptor_columns.indptr[col] : self._descriptor_columns.indptr[col + 1]]] = False
+                    mask[columns.indices[columns.indptr[col] : columns.indptr[col + 1]]] = False
             touched = True
         if filters.exclude_retired and self.retired_ is not None:
             mask &= ~self.retired_
@@ -503,117 +480,95 @@ class SimilarityIndex:
                 touched = True
         return mask if touched else None
 
-    # ------------------------------------------------------------------ full scores
-    def shape_scores(self, query_shape: np.ndarray) -> np.ndarray:
-        """Exact USR shape similarity (0-1) of one shape vector against every material."""
-        query_shape = np.asarray(query_shape, np.float32)
-        n, width = self.shape_.shape
-        if self._shape_sums is None:
-            self._shape_sums = self.shape_.sum(axis=1, dtype=np.float32)
-        out = np.empty(n, np.float32)
-        ones = np.ones(width, np.float32)
-        block = 4096  # stays in cache
-        buffer = np.empty((block, width), np.float32)
-        with _single_threaded_blas():
-            # |a - b| summed = sum(a) + sum(b) - 2 sum(min(a, b)): one elementwise pass instead of two
-            for start in range(0, n, block):
-                stop = min(start + block, n)
-                part = buffer[: stop - start]
-                np.minimum(self.shape_[start:stop], query_shape, out=part)
-                np.dot(part, ones, out=out[start:stop])
-        out *= np.float32(-2.0)
-        out += self._shape_sums
-        out += np.float32(query_shape.sum(dtype=np.float32))
-        np.maximum(out, np.float32(0.0), out=out)
-        out *= np.float32(1.0 / width)
-        out += np.float32(1.0)
-        return np.reciprocal(out, out=out)
+    # ------------------------------------------------------------------ scores
+    def _metric(self, name: str):
+        metric = metric_registry.get(name)
+        if not metric.indexed:
+            raise ValueError(f"metric {name!r} is scored from stored records, not by the index; "
+                             f"rank by one of {', '.join(indexed_metrics())}")
+        missing = [f for f in metric_registry.features_of(metric) if f not in self.features_]
+        if missing:
+            raise ValueError(f"metric {name!r} needs the feature(s) {', '.join(missing)}, which were not given to fit()")
+        return metric
 
-    def vibration_scores(self, query_fingerprint: np.ndarray, *, approximate: bool = False) -> np.ndarray:
-        """Cosine similarity (0-1) of one normalized fingerprint against every material.
+    def query_block(self, *, query_id=None, **features) -> Block:
+        """A query as a block: the catalogue row of ``query_id`` when no features are given, else
+        the given features (``shape``, ``fingerprint``, ``structure`` or any registered feature),
+        prepared like the catalogue's (fingerprints normalized, structures turned into bits)."""
+        self._check_fitted()
+        given = {name: value for name, value in features.items() if value is not None}
+        if not given:
+            if query_id is None or not self._contains(query_id):
+                raise ValueError(
+                    f"query_id {query_id!r} is not in the index; pass its shape, fingerprint and structure instead"
+                    if query_id is not None
+                    else "give a query_id from the index or the query's shape/fingerprint/structure")
+            return self.block([self.row_of(query_id)])
+        arrays: dict[str, np.ndarray] = {}
+        for name, value in given.items():
+            if name not in metric_registry.FEATURES:
+                raise ValueError(f"unknown query feature {name!r}; known: {', '.join(metric_registry.FEATURES)}")
+            prepared = metric_registry.prepare_feature(name, value, name)
+            stored = self.features_.get(name)
+            if prepared[name].shape[0] != 1:
+                raise ValueError(f"{name} must be one material's values, got {prepared[name].shape[0]} rows")
+            if stored is not None and prepared[name].shape[1:] != stored.shape[1:]:
+                raise ValueError(f"{name} must be {stored.shape[1]} values like the catalogue, got "
+                                 f"{prepared[name].shape[1]}")
+            arrays.update(prepared)
+        return Block(arrays, None)
 
-        ``approximate=True`` uses the PCA-compressed fingerprints (if fitted).
-        """
-        with _single_threaded_blas():
-            if approximate and self.compressed_ is not None:
-                projected = (query_fingerprint - self.pca_mean_) @ self.pca_basis_.T
-                out = self.compressed_ @ projected
-                out += self.row_bias_
-                out += np.float32(float(query_fingerprint @ self.pca_mean_) - self._mean_square)
-                return out
-            return self.fingerprints_ @ query_fingerprint
+    def scores(self, metric: str, query: Block, *, weight: float = metric_registry.DEFAULT_WEIGHT,
+               approximate: bool = False) -> np.ndarray:
+        """Similarities (0-1, float32) of one query block against every catalogue material under
+        `metric`; `approximate` uses the metric's first stage when it has one."""
+        chosen = self._metric(metric)
+        weight = check_weight(weight)
+        return self._full_scores(chosen, query, weight, approximate, {})
 
-    def structure_scores(self, query_bits: np.ndarray) -> np.ndarray:
-        """Tanimoto similarity (0-1) of packed Morgan bits against every material (0 when both are empty)."""
-        words = np.ascontiguousarray(query_bits, np.uint8).view(np.uint64)
-        query_count = int(np.bitwise_count(words).sum())
-        n = self.size
-        inter = np.empty(n, np.int32)
-        block = 65_536
-        for start in range(0, n, block):
-            inter[start : start + block] = np.bitwise_count(self._structure_words[start : start + block] & words).sum(
-                axis=1, dtype=np.int32
-            )
-        union = self._structure_counts + query_count - inter
-        out = np.zeros(n, np.float32)
-        np.divide(inter, union, out=out, where=union > 0, casting="unsafe")
-        return out
+    def _full_scores(self, metric, query: Block, weight: float, approximate: bool, cache: dict) -> np.ndarray:
+        key = (metric.name, approximate)
+        if key in cache:
+            return cache[key]
 
-    def pair_scores(self, rows_a, rows_b, *, weight: float = 0.5) -> dict[str, np.ndarray]:
-        """Exact similarities (0-1) of material pairs given as catalogue rows, every metric."""
+        def full(name: str) -> np.ndarray:
+            return self._full_scores(metric_registry.get(name), query, weight, approximate, cache)
+
+        values = metric.first_stage(self, query, weight=weight, full=full) if approximate else None
+        cache[("first stage", metric.name)] = values is not None
+        if values is None and metric.components:
+            values = metric.combine({name: full(name) for name in metric.components}, weight=weight)
+        if values is None:
+            values = metric.similarity(query, self._catalogue, weight=weight)[0]
+        cache[key] = values = np.asarray(values, np.float32)
+        return values
+
+    def pair_scores(self, rows_a, rows_b, *, weight: float = metric_registry.DEFAULT_WEIGHT) -> dict[str, np.ndarray]:
+        """Exact similarities (0-1) of material pairs given as catalogue rows, every indexed metric."""
         self._check_fitted()
         rows_a = np.asarray(rows_a, np.int64)
         rows_b = np.asarray(rows_b, np.int64)
         if rows_a.shape != rows_b.shape or rows_a.ndim != 1:
             raise ValueError(f"rows_a and rows_b must be 1-D of equal length, got {rows_a.shape} and {rows_b.shape}")
-        _check_weight(weight)
-        out = {m: np.empty(rows_a.size, np.float32) for m in ("shape", "vibration")}
+        weight = check_weight(weight)
+        out = {name: np.empty(rows_a.size, np.float32) for name in self.metrics()}
         block = 16_384
-        width = self.shape_.shape[1]
         for start in range(0, rows_a.size, block):
-            a, b = rows_a[start : start + block], rows_b[start : start + block]
-            l1 = np.abs(self.shape_[a] - self.shape_[b]).sum(axis=1)
-            out["shape"][start : start + block] = 1.0 / (1.0 + l1 / width)
-            out["vibration"][start : start + block] = np.einsum("ij,ij->i", self.fingerprints_[a], self.fingerprints_[b])
-        out["blend"] = (weight * out["shape"] + (1 - weight) * out["vibration"]).astype(np.float32)
-        if self.structure_ is not None:
-            inter = np.bitwise_count(self._structure_words[rows_a] & self._structure_words[rows_b]).sum(axis=1)
-            union = self._structure_counts[rows_a] + self._structure_counts[rows_b] - inter
-            structure = np.zeros(rows_a.size, np.float32)
-            np.divide(inter, union, out=structure, where=union > 0, casting="unsafe")
-            out["structure"] = structure
+            a, b = self.block(rows_a[start : start + block]), self.block(rows_b[start : start + block])
+            for name in out:
+                out[name][start : start + block] = metric_registry.get(name).similarity(a, b, aligned=True,
+                                                                                        weight=weight)
         return out
 
-    # ------------------------------------------------------------------ query
-    def _resolve_query(self, query_id, shape, fingerprint, structure):
-        row = self.row_of(query_id) if query_id is not None and self._contains(query_id) else None
-        if shape is None and fingerprint is None and structure is None:
-            if row is None:
-                raise ValueError(
-                    f"query_id {query_id!r} is not in the index; pass its shape, fingerprint and structure instead"
-                    if query_id is not None
-                    else "give a query_id from the index or the query's shape/fingerprint/structure"
-                )
-            bits = None if self.structure_ is None else self.structure_[row]
-            return row, self.shape_[row], self.fingerprints_[row], bits
-        if shape is not None:
-            shape = np.asarray(shape, np.float32)
-            if shape.shape != (self.shape_.shape[1],) or not np.isfinite(shape).all():
-                raise ValueError(
-                    f"shape must be {self.shape_.shape[1]} finite values like the catalogue, got shape {shape.shape}"
-                )
-        if fingerprint is not None:
-            fingerprint = np.asarray(fingerprint, np.float32)
-            if fingerprint.shape != (self.fingerprints_.shape[1],) or not np.isfinite(fingerprint).all():
-                raise ValueError(
-                    f"fingerprint must be {self.fingerprints_.shape[1]} finite values, got shape {fingerprint.shape}"
-                )
-            if (fingerprint < 0).any() or not (fingerprint > 0).any():
-                raise ValueError("fingerprint must be non-negative and not all zero")
-            fingerprint = fingerprint / np.float32(np.linalg.norm(fingerprint.astype(np.float64)))
-        bits = None if structure is None else _pack_structure(structure, 1, "structure")[0]
-        return row, shape, fingerprint, bits
+    def similarity_matrix(self, metric: str, rows, *, weight: float = metric_registry.DEFAULT_WEIGHT) -> np.ndarray:
+        """Full (n, n) float64 similarity matrix of catalogue rows `rows` under `metric` (for scorecards:
+        n of a few thousand at most)."""
+        chosen = self._metric(metric)
+        block = self._rows_for(chosen, np.asarray(rows, np.int64))
+        values = chosen.similarity(block, block, weight=check_weight(weight)).astype(np.float64)
+        return 0.5 * (values + values.T)  # exact symmetry despite float rounding in the kernels
 
+    # ------------------------------------------------------------------ query
     def query(
         self,
         *,
@@ -621,8 +576,9 @@ class SimilarityIndex:
         shape=None,
         fingerprint=None,
         structure=None,
+        features: Mapping[str, object] | None = None,
         metric: str = "blend",
-        weight: float = 0.5,
+        weight: float = metric_registry.DEFAULT_WEIGHT,
         k: int = 10,
         filters: SearchFilter | None = None,
         exclude_query: bool = True,
@@ -633,17 +589,16 @@ class SimilarityIndex:
     ) -> list[Hit]:
         """The ``k`` materials most similar to a query under ``metric``, best first.
 
-        The query is a catalogue material (``query_id``) or given by its ``shape``
-        vector, vibrational ``fingerprint`` (same cm^-1 grid as the catalogue; it is
-        normalized here) and ``structure`` (SMILES or bits); ``query_id`` then only
-        labels it. ``weight`` is the shape weight of the blend (0-1).
+        The query is a catalogue material (``query_id``) or given by its features: ``shape``
+        vector, vibrational ``fingerprint`` (same cm^-1 grid as the catalogue; it is normalized
+        here), ``structure`` (SMILES or bits) and any other registered feature in ``features``;
+        ``query_id`` then only labels it. ``weight`` is the shape weight of the blend (0-1).
 
-        ``ranks``: "exact" ranks every hit under every metric among the filtered
-        catalogue from full exact scans (reads all fingerprints); "estimated" (default)
-        gives exact shape and structure ranks and counts vibration and blend ranks
-        against the compressed first-stage scores (exact when no compression is
-        fitted) - the rank under the searched metric is the position in the list;
-        "none" only gives that position. ``exact=True`` skips the compressed first
+        ``ranks``: "exact" ranks every hit under every metric among the filtered catalogue from
+        full exact scans (reads all fingerprints); "estimated" (default) gives exact ranks for
+        metrics without a first stage and counts the others against their first-stage scores
+        (exact when no compression is fitted) - the rank under the searched metric is the
+        position in the list; "none" only gives that position. ``exact=True`` skips the first
         stage.
 
         ``rerank``: a callback ``(query_id, candidate_ids) -> scores in 0-1`` (e.g. a
@@ -653,11 +608,10 @@ class SimilarityIndex:
         re-scored ones in their first-stage order and carry no ``"overlay"`` score.
         """
         self._check_fitted()
-        if metric not in METRICS:
-            raise ValueError(f"metric must be one of {METRICS}, got {metric!r}")
+        chosen = self._metric(metric)
         if ranks not in RANK_MODES:
             raise ValueError(f"ranks must be one of {RANK_MODES}, got {ranks!r}")
-        _check_weight(weight)
+        weight = check_weight(weight)
         if int(k) < 1:
             raise ValueError(f"k must be a positive integer, got {k!r}")
         if rerank is not None:
@@ -665,15 +619,16 @@ class SimilarityIndex:
                 raise ValueError(f"rerank_depth must be a positive integer, got {rerank_depth!r}")
             if query_id is None:
                 raise ValueError("rerank needs a query_id to pass to the callback")
-        row, q_shape, q_fingerprint, q_bits = self._resolve_query(query_id, shape, fingerprint, structure)
-        available = {
-            "shape": q_shape is not None,
-            "vibration": q_fingerprint is not None,
-            "blend": q_shape is not None and q_fingerprint is not None,
-            "structure": q_bits is not None and self.structure_ is not None,
-        }
-        if not available[metric]:
-            raise ValueError(f"metric {metric!r} needs query data that was not given (shape/fingerprint/structure)")
+        given = dict(features or {})
+        given.update({name: value for name, value in (("shape", shape), ("fingerprint", fingerprint),
+                                                      ("structure", structure)) if value is not None})
+        query = self.query_block(query_id=query_id, **given)
+        row = self.row_of(query_id) if query_id is not None and self._contains(query_id) else None
+        available = [name for name in self.metrics()
+                     if query.has(metric_registry.features_of(metric_registry.get(name)))]
+        if metric not in available:
+            raise ValueError(f"metric {metric!r} needs query data that was not given "
+                             f"({', '.join(metric_registry.features_of(chosen))})")
 
         mask = self.filter_mask(filters)
         if exclude_query and row is not None:
@@ -681,56 +636,41 @@ class SimilarityIndex:
             mask[row] = False
         exact = exact or ranks == "exact" or self.compressed_ is None
         depth = max(int(k), int(rerank_depth) if rerank is not None else 0)
+        cache: dict = {}  # full-catalogue scores per metric (first stage unless exact)
 
-        full: dict[str, np.ndarray] = {}  # full-catalogue scores (first-stage for vibration unless exact)
-
-        def get_full(name: str) -> np.ndarray:
-            if name not in full:
-                if name == "shape":
-                    full[name] = self.shape_scores(q_shape)
-                elif name == "vibration":
-                    full[name] = self.vibration_scores(q_fingerprint, approximate=not exact)
-                elif name == "structure":
-                    full[name] = self.structure_scores(q_bits)
-                else:
-                    full[name] = weight * get_full("shape") + (1 - weight) * get_full("vibration")
-            return full[name]
+        def full(name: str) -> np.ndarray:
+            return self._full_scores(metric_registry.get(name), query, weight, not exact, cache)
 
         def masked(values: np.ndarray) -> np.ndarray:
             return values if mask is None else np.where(mask, values, np.float32(-np.inf))
 
-        first = masked(get_full(metric))
-        if metric in ("vibration", "blend") and not exact:
+        first = masked(full(metric))
+        if cache.get(("first stage", metric)):
             count = max(self.min_candidates, self.candidate_multiplier * depth)
             candidates = _ordered_top(first, count)
-            exact_vibration = self.fingerprints_[candidates] @ q_fingerprint
-            if metric == "blend":
-                rescored = weight * full["shape"][candidates] + (1 - weight) * exact_vibration
-            else:
-                rescored = exact_vibration
+            rescored = chosen.similarity(query, self._rows_for(chosen, candidates), weight=weight)[0]
             rows = candidates[_ordered_top(rescored.astype(np.float32), depth)]
         else:
             rows = _ordered_top(first, depth)
         if rows.size == 0:
             return []
 
-        hit_scores = self._hit_scores(rows, q_shape, q_fingerprint, q_bits, weight, available)
+        hit_scores = {name: np.asarray(metric_registry.get(name).similarity(
+            query, self._rows_for(metric_registry.get(name), rows), weight=weight)[0], np.float64)
+            for name in available}
         if exact:
             # scores from the same full arrays the ranks are counted in, so both agree
-            for name in hit_scores:
-                hit_scores[name] = get_full(name)[rows].astype(np.float64)
+            hit_scores = {name: full(name)[rows].astype(np.float64) for name in available}
 
         rank_table: dict[str, np.ndarray] = {}
         if ranks != "none":
-            for name in METRICS:
-                if not available[name]:
-                    continue
-                values = masked(get_full(name))
+            for name in available:
+                values = masked(full(name))
                 own = hit_scores[name].astype(values.dtype)
                 greater = np.array([np.count_nonzero(values > value) for value in own], dtype=np.int64)
-                if not exact and name in ("vibration", "blend"):
-                    # the hit's own first-stage entry may exceed its exact score
-                    greater -= (values[rows] > own).astype(greater.dtype)
+                # the hit's own full-catalogue entry (first stage or another summation order) may
+                # exceed its exact score: it must not count as better than itself
+                greater -= (values[rows] > own).astype(greater.dtype)
                 rank_table[name] = 1 + greater
         position = np.arange(1, rows.size + 1)
         if ranks != "exact" or metric not in rank_table:
@@ -774,143 +714,85 @@ class SimilarityIndex:
             )
         return hits
 
-    def _hit_scores(self, rows, q_shape, q_fingerprint, q_bits, weight, available) -> dict[str, np.ndarray]:
-        scores: dict[str, np.ndarray] = {}
-        if available["shape"]:
-            l1 = np.abs(self.shape_[rows] - q_shape).sum(axis=1, dtype=np.float64)
-            scores["shape"] = 1.0 / (1.0 + l1 / self.shape_.shape[1])
-        if available["vibration"]:
-            scores["vibration"] = (self.fingerprints_[rows] @ q_fingerprint).astype(np.float64)
-        if available["blend"]:
-            scores["blend"] = weight * scores["shape"] + (1 - weight) * scores["vibration"]
-        if available["structure"]:
-            words = q_bits.view(np.uint64)
-            inter = np.bitwise_count(self._structure_words[rows] & words).sum(axis=1)
-            union = self._structure_counts[rows] + int(np.bitwise_count(words).sum()) - inter
-            scores["structure"] = np.where(union > 0, inter / np.maximum(union, 1), 0.0)
-        return scores
-
     # ------------------------------------------------------------------ neighbors
     def neighbors(
         self,
         metric: str = "shape",
         k: int = 10,
         *,
-        weight: float = 0.5,
+        weight: float = metric_registry.DEFAULT_WEIGHT,
         filters: SearchFilter | None = None,
         exact: bool | None = None,
         show_progress: bool = False,
     ) -> NeighborLists:
         """The ``k`` nearest other materials of every material under ``metric``.
 
-        Computed in blocks; memory stays O(N * k) plus one block. ``exact=None``
-        scans all pairs when at most ``exact_below`` materials pass ``filters`` and
-        otherwise uses the two-stage scan: candidates from k-means groups (shape:
-        Euclidean distance on the shape vectors; vibration: compressed fingerprints;
-        blend: the union of both; structure is always scanned exactly through sparse
-        bit products, quadratic in N) and exact re-scoring of the candidates.
+        Computed in blocks; memory stays O(N * k) plus one block. ``exact=None`` scans all
+        pairs when at most ``exact_below`` materials pass ``filters`` and otherwise uses the
+        two-stage scan: candidates from k-means groups in each metric's candidate space (shape:
+        Euclidean distance on the shape vectors; vibration: compressed fingerprints; a composite
+        metric: the union of its components'; a metric without one, such as structure, is always
+        scanned exactly, quadratic in N) and exact re-scoring of the candidates.
         """
         self._check_fitted()
-        if metric not in METRICS:
-            raise ValueError(f"metric must be one of {METRICS}, got {metric!r}")
-        if metric == "structure" and self.structure_ is None:
-            raise ValueError("metric 'structure' needs structure_bits, which were not given to fit()")
-        _check_weight(weight)
+        chosen = self._metric(metric)
+        weight = check_weight(weight)
         if int(k) < 1:
             raise ValueError(f"k must be a positive integer, got {k!r}")
         mask = self.filter_mask(filters)
         rows = np.arange(self.size) if mask is None else np.flatnonzero(mask)
         k = min(int(k), max(rows.size - 1, 0))
+        spaces = [chosen] if not chosen.components else [metric_registry.get(c) for c in chosen.components]
+        scannable = all(s.candidate_space(self, rows[:1]) is not None for s in spaces)
         if exact is None:
-            exact = rows.size <= self.exact_below or metric == "structure"
+            exact = rows.size <= self.exact_below or not scannable
         if k == 0:
             empty = np.empty((rows.size, 0))
             return NeighborLists(metric, rows, empty.astype(np.int64), empty.astype(np.float32), bool(exact))
         if exact:
-            local, scores = self._exact_neighbors(metric, rows, k, weight, show_progress)
+            local, scores = self._exact_neighbors(chosen, rows, k, weight, show_progress)
         else:
             count = max(self.neighbor_candidates, k + 10)
-            if metric == "shape":
-                candidates = self._candidates("shape", rows, count, show_progress)
-            elif metric == "vibration":
-                candidates = self._candidates("vibration", rows, count, show_progress)
-            else:
-                candidates = np.concatenate(
-                    [
-                        self._candidates("shape", rows, count, show_progress),
-                        self._candidates("vibration", rows, count, show_progress),
-                    ],
-                    axis=1,
-                )
-            local, scores = self._rescore(metric, rows, candidates, k, weight)
+            candidates = np.concatenate([self._candidates(space, rows, count, show_progress) for space in spaces],
+                                        axis=1)
+            if len(spaces) > 1:
+                candidates = _dedupe_rows(candidates)
+            local, scores = self._rescore(chosen, rows, candidates, k, weight)
         neighbor_rows = np.where(local >= 0, rows[np.maximum(local, 0)], -1)
         return NeighborLists(metric, rows, neighbor_rows, scores, bool(exact))
-
-    def _block_scores(self, metric: str, block_rows: np.ndarray, rows: np.ndarray, weight: float) -> np.ndarray:
-        """Exact similarities of ``block_rows`` (B) against ``rows`` (R) -> (B, R) float32."""
-        from scipy.spatial.distance import cdist
-
-        if metric == "structure":
-            inter = self._sparse_bits(block_rows) @ self._sparse_bits(rows).T
-            inter = np.asarray(inter.todense(), np.float32)
-            union = self._structure_counts[block_rows][:, None] + self._structure_counts[rows][None, :] - inter
-            out = np.zeros_like(inter)
-            np.divide(inter, union, out=out, where=union > 0)
-            return out
-        parts = {}
-        if metric in ("shape", "blend"):
-            l1 = cdist(self.shape_[block_rows], self.shape_[rows], "cityblock")
-            parts["shape"] = (1.0 / (1.0 + l1 / self.shape_.shape[1])).astype(np.float32)
-        if metric in ("vibration", "blend"):
-            parts["vibration"] = self.fingerprints_[block_rows] @ self.fingerprints_[rows].T
-        if metric == "blend":
-            return weight * parts["shape"] + (1 - weight) * parts["vibration"]
-        return parts[metric]
-
-    def _sparse_bits(self, rows: np.ndarray):
-        from scipy import sparse
-
-        bits = np.unpackbits(self.structure_[rows], axis=1)
-        return sparse.csr_matrix(bits.astype(np.float32))
 
     def _exact_neighbors(self, metric, rows, k, weight, show_progress):
         local = np.full((rows.size, k), -1, np.int64)
         scores = np.full((rows.size, k), np.nan, np.float32)
         block = max(1, min(1024, (64 * 2**20) // (4 * rows.size)))
-        for start in _progress(range(0, rows.size, block), show_progress, f"{metric} neighbors"):
+        everything = self._rows_for(metric, rows)
+        for start in _progress(range(0, rows.size, block), show_progress, f"{metric.name} neighbors"):
             stop = min(start + block, rows.size)
-            values = self._block_scores(metric, rows[start:stop], rows, weight)
+            values = np.asarray(metric.similarity(everything.take(np.arange(start, stop)), everything, weight=weight),
+                                np.float32)
             values[np.arange(stop - start), np.arange(start, stop)] = -np.inf
             top = _row_top(values, k)
             local[start:stop, : top.shape[1]] = top
             scores[start:stop, : top.shape[1]] = np.take_along_axis(values, top, axis=1)
         return local, scores
 
-    def _first_stage(self, kind: str, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Vectors Y and column bias b such that larger ``y_q . y_c + b_c`` means more alike."""
-        if kind == "shape":
-            vectors = self.shape_[rows]
-            # Euclidean proxy for the L1 shape distance: -|q - c|^2 / 2 up to a per-query constant
-            bias = -0.5 * np.einsum("ij,ij->i", vectors, vectors)
-        elif self.compressed_ is not None:
-            vectors = self.compressed_[rows]
-            bias = self.row_bias_[rows]
-        else:
-            vectors = self.fingerprints_[rows]
-            bias = np.zeros(rows.size, np.float32)
-        return np.ascontiguousarray(vectors, np.float32), bias.astype(np.float32)
+    def _grouping(self, metric, rows: np.ndarray, vectors: np.ndarray):
+        key = (metric.name, rows.size, hash(rows[: 64].tobytes()), hash(rows[-64:].tobytes()))
+        with self._coarse_lock:
+            if key in self._coarse:
+                return self._coarse[key]
+            grouping = self._group(metric, vectors)
+            self._coarse[key] = grouping
+            return grouping
 
-    def _grouping(self, kind: str, rows: np.ndarray, vectors: np.ndarray):
-        key = (kind, rows.size, hash(rows[: 64].tobytes()), hash(rows[-64:].tobytes()))
-        if key in self._coarse:
-            return self._coarse[key]
+    def _group(self, metric, vectors: np.ndarray):
         from sklearn.cluster import KMeans
 
-        n = rows.size
+        n = vectors.shape[0]
         clusters = min(n, self.clusters or max(1, int(round(math.sqrt(n)))))
         # Vibrational fingerprints group less tightly than shape moments (measured at 100k: probing
         # clusters/12 groups found 0.67 of the true top 10, clusters/3 found 0.85), so they probe more.
-        share = VIBRATION_PROBE_SHARE if kind == "vibration" else SHAPE_PROBE_SHARE
+        share = VIBRATION_PROBE_SHARE if metric.name == "vibration" else SHAPE_PROBE_SHARE
         probes = min(clusters, self.probes or max(1, int(math.ceil(clusters / share))))
         rng = np.random.default_rng(self.random_state)
         sample = rng.choice(n, size=min(n, 30 * clusters), replace=False)
@@ -927,16 +809,16 @@ class SimilarityIndex:
         order = np.argsort(assignment, kind="stable")
         bounds = np.searchsorted(assignment[order], np.arange(clusters + 1))
         members = [order[bounds[c] : bounds[c + 1]] for c in range(clusters)]
-        grouping = (members, nearest)
-        self._coarse[key] = grouping
-        return grouping
+        return members, nearest
 
-    def _candidates(self, kind: str, rows: np.ndarray, count: int, show_progress: bool) -> np.ndarray:
+    def _candidates(self, metric, rows: np.ndarray, count: int, show_progress: bool) -> np.ndarray:
         """(R, count) local candidate positions (-1 padded) from the grouped first stage."""
         from threadpoolctl import threadpool_limits
 
-        vectors, bias = self._first_stage(kind, rows)
-        members, nearest = self._grouping(kind, rows, vectors)
+        vectors, bias = metric.candidate_space(self, rows)
+        vectors = np.ascontiguousarray(vectors, np.float32)
+        bias = np.asarray(bias, np.float32)
+        members, nearest = self._grouping(metric, rows, vectors)
         out = np.full((rows.size, count), -1, np.int64)
 
         def work(cluster: int) -> None:
@@ -958,7 +840,7 @@ class SimilarityIndex:
         tasks = range(len(members))
         with threadpool_limits(1 if self.n_jobs > 1 else None):
             with ThreadPoolExecutor(max_workers=self.n_jobs) as pool:
-                list(_progress(pool.map(work, tasks), show_progress, f"{kind} candidates", total=len(members)))
+                list(_progress(pool.map(work, tasks), show_progress, f"{metric.name} candidates", total=len(members)))
         return out
 
     def _rescore(self, metric, rows, candidates, k, weight):
@@ -966,25 +848,16 @@ class SimilarityIndex:
         r = rows.size
         local = np.full((r, k), -1, np.int64)
         scores = np.full((r, k), np.nan, np.float32)
-        width = self.shape_.shape[1]
-        block = max(1, (48 * 2**20) // (4 * candidates.shape[1] * self.fingerprints_.shape[1]))
+        width = sum(self.features_[name][0].nbytes for f in metric_registry.features_of(metric)
+                    for name in self._arrays_of[f])
+        block = max(1, (48 * 2**20) // (candidates.shape[1] * max(1, width)))
         for start in range(0, r, block):
             stop = min(start + block, r)
             cand = candidates[start:stop]
-            if metric == "blend":
-                cand = _dedupe_rows(cand)
             valid = cand >= 0
-            query_rows = rows[start:stop]
-            cand_rows = rows[np.maximum(cand, 0)]
-            parts = {}
-            if metric in ("shape", "blend"):
-                l1 = np.abs(self.shape_[cand_rows] - self.shape_[query_rows][:, None, :]).sum(axis=2)
-                parts["shape"] = 1.0 / (1.0 + l1 / width)
-            if metric in ("vibration", "blend"):
-                parts["vibration"] = np.einsum(
-                    "bcd,bd->bc", self.fingerprints_[cand_rows], self.fingerprints_[query_rows]
-                )
-            values = weight * parts["shape"] + (1 - weight) * parts["vibration"] if metric == "blend" else parts[metric]
+            query = self._rows_for(metric, rows[start:stop]).expand(1)
+            values = np.asarray(metric.similarity(query, self._rows_for(metric, rows[np.maximum(cand, 0)]),
+                                                  aligned=True, weight=weight), np.float32)
             values = np.where(valid, values, -np.inf).astype(np.float32)
             top = _row_top(values, k)
             chosen = np.take_along_axis(values, top, axis=1)
@@ -994,28 +867,25 @@ class SimilarityIndex:
         return local, scores
 
     # ------------------------------------------------------------------ cache
-    def save(self, path: str | os.PathLike, revision: str) -> None:
-        """Write the fitted index to ``path`` (numpy .npz, uncompressed) under a catalogue revision key."""
+    def save(self, path: str | os.PathLike, revision: str, *, extra: Mapping[str, np.ndarray] | None = None) -> None:
+        """Write the fitted index to ``path`` (numpy .npz, uncompressed) under a catalogue revision key.
+
+        ``extra``: more named arrays to keep beside the index (read back with :meth:`load_extra`).
+        """
         self._check_fitted()
         if not isinstance(revision, str) or not revision:
             raise ValueError(f"revision must be a non-empty string, got {revision!r}")
-        config = {
-            name: getattr(self, name)
-            for name in (
-                "pca_components", "pca_sample_size", "candidate_multiplier", "min_candidates",
-                "neighbor_candidates", "exact_below", "clusters", "probes", "n_jobs", "random_state",
-            )
-        }
+        config = {name: getattr(self, name) for name in CONFIG_KEYS}
         arrays = {
             "format_version": np.int64(FORMAT_VERSION),
             "revision": np.asarray(revision),
             "config": np.asarray(json.dumps(config)),
             "ids": self.ids_,
-            "shape": self.shape_,
-            "fingerprints": self.fingerprints_,
         }
+        for name in metric_registry.FEATURES:
+            if name in self.features_:
+                arrays[f"feature:{name}"] = self.features_[name]
         optional = {
-            "structure": self.structure_,
             "pca_mean": self.pca_mean_,
             "pca_basis": self.pca_basis_,
             "compressed": self.compressed_,
@@ -1030,8 +900,10 @@ class SimilarityIndex:
             arrays["descriptor_vocabulary"] = self.descriptor_vocabulary_
             arrays["descriptor_indptr"] = self._descriptor_indptr
             arrays["descriptor_indices"] = self._descriptor_indices
+        for name, value in (extra or {}).items():
+            arrays[f"extra:{name}"] = np.asarray(value)
         path = Path(path)
-        temporary = path.with_name(path.name + ".partial")
+        temporary = path.with_name(path.name + f".partial-{os.getpid()}-{threading.get_ident()}")
         with open(temporary, "wb") as handle:
             np.savez(handle, **arrays)
         os.replace(temporary, path)
@@ -1040,7 +912,7 @@ class SimilarityIndex:
     def load(cls, path: str | os.PathLike, revision: str, *, strict: bool = False) -> "SimilarityIndex | None":
         """Read an index written by :meth:`save` if it was built for ``revision``.
 
-        Returns None when the file is missing or holds another revision, or raises
+        Returns None when the file is missing, unreadable or holds another revision, or raises
         (FileNotFoundError / :class:`RevisionMismatchError`) when ``strict``.
         """
         path = Path(path)
@@ -1048,10 +920,17 @@ class SimilarityIndex:
             if strict:
                 raise FileNotFoundError(f"no cached index at {path}")
             return None
-        with np.load(path, allow_pickle=False) as data:
-            if int(data["format_version"]) != FORMAT_VERSION:
+        try:
+            data = np.load(path, allow_pickle=False)
+        except (OSError, ValueError) as error:
+            if strict:
+                raise RevisionMismatchError(f"cached index at {path} cannot be read: {error}") from None
+            return None
+        with data:
+            version = int(data["format_version"]) if "format_version" in data.files else -1
+            if version != FORMAT_VERSION:
                 if strict:
-                    raise RevisionMismatchError(f"cached index at {path} has format {int(data['format_version'])}")
+                    raise RevisionMismatchError(f"cached index at {path} has format {version}")
                 return None
             stored = str(data["revision"])
             if stored != revision:
@@ -1062,25 +941,29 @@ class SimilarityIndex:
                 return None
             index = cls(**json.loads(str(data["config"])))
             index.ids_ = data["ids"]
-            index._row_of = None
-            index._shape_sums = None
-            index.shape_ = data["shape"]
-            index.fingerprints_ = data["fingerprints"]
+            index.features_ = {}
+            for name in metric_registry.FEATURES:
+                key = f"feature:{name}"
+                if key in data.files:
+                    values = data[key]
+                    index.features_.update({name: values, **metric_registry.FEATURES[name].derived(values)})
             get = lambda name: data[name] if name in data.files else None  # noqa: E731
-            index.structure_ = get("structure")
-            index._set_structure_counts()
             index.pca_mean_, index.pca_basis_ = get("pca_mean"), get("pca_basis")
             index.compressed_, index.row_bias_ = get("compressed"), get("row_bias")
-            if index.pca_mean_ is not None:
-                index._mean_square = float(index.pca_mean_ @ index.pca_mean_)
+            index.mean_square_ = float(index.pca_mean_ @ index.pca_mean_) if index.pca_mean_ is not None else 0.0
             index.molecular_weight_, index.logp_ = get("molecular_weight"), get("logp")
             index.retired_, index.restricted_ = get("retired"), get("restricted")
             index.descriptor_vocabulary_ = None
             index._descriptor_columns = None
             if "descriptor_vocabulary" in data.files:
                 index._set_descriptors(data["descriptor_vocabulary"], data["descriptor_indptr"], data["descriptor_indices"])
-            index._coarse = {}
+            index.extra_ = {name[len("extra:"):]: data[name] for name in data.files if name.startswith("extra:")}
+            index._finish()
         return index
+
+    def load_extra(self, name: str) -> np.ndarray | None:
+        """An array saved with the index under `name` (see :meth:`save`), or None."""
+        return getattr(self, "extra_", {}).get(name)
 
 
 def _words(words) -> Iterable[str]:
@@ -1089,34 +972,16 @@ def _words(words) -> Iterable[str]:
     return (str(w) for w in words)
 
 
-def _check_weight(weight: float) -> None:
-    if not 0.0 <= float(weight) <= 1.0:
-        raise ValueError(f"weight (shape share of the blend) must be in 0-1, got {weight!r}")
-
-
 def _dedupe_rows(candidates: np.ndarray) -> np.ndarray:
     """Replace repeated candidates within each row by -1."""
     order = np.argsort(candidates, axis=1, kind="stable")
     ordered = np.take_along_axis(candidates, order, axis=1)
     repeated = np.zeros_like(ordered, dtype=bool)
-    repeated[:, 1:] = ordered[:, 1:] == ordered[:, :-1]
+    repeated[:, 1:] = (ordered[:, 1:] == ordered[:, :-1]) & (ordered[:, 1:] >= 0)
     ordered[repeated] = -1
     out = np.empty_like(candidates)
     np.put_along_axis(out, order, ordered, axis=1)
     return out
-
-
-_blas_controller = None
-
-
-def _single_threaded_blas():
-    """Context limiting BLAS to one thread: matrix-vector products are faster so here."""
-    global _blas_controller
-    if _blas_controller is None:
-        from threadpoolctl import ThreadpoolController
-
-        _blas_controller = ThreadpoolController()
-    return _blas_controller.limit(limits=1, user_api="blas")
 
 
 def _progress(iterable, show: bool, description: str, total: int | None = None):

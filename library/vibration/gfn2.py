@@ -23,16 +23,15 @@ import ctypes.util
 import importlib.metadata
 import multiprocessing
 import os
+import sys
 
 import numpy as np
 import scipy.optimize
 from rdkit import Chem
 
 from library import units
-from library.vibration._threads import single_threaded_blas
-from library.vibration.errors import NotAMinimumError, VibrationInputError
-from library.vibration.normal_modes import analyze, atomic_masses_amu, ir_intensities_km_mol
-from library.vibration.result import ConformerVibrations, quality_notes
+from library.vibration import engines
+from library.vibration.errors import VibrationInputError
 
 try:
     TBLITE_VERSION = importlib.metadata.version("tblite")
@@ -41,6 +40,8 @@ except importlib.metadata.PackageNotFoundError:  # pragma: no cover - optional d
 
 ENGINE_NAME = "gfn2-xtb"
 ENGINE_VERSION = f"GFN2-xTB (tblite {TBLITE_VERSION}); olibra vibration 1"
+DISPLAY_NAME = "GFN2-xTB"
+RUNTIME_KNOBS = ("processes",)  # worker processes per Hessian: the same result, sooner
 
 DEFAULTS = {
     "accuracy": 0.01,
@@ -55,11 +56,12 @@ DEFAULTS = {
 
 def parameters(**knobs) -> dict:
     """JSON-able settings of this engine (defaults overridden by `knobs`), hashed for staleness."""
-    unknown = set(knobs) - set(DEFAULTS) - {"processes"}
-    if unknown:
-        raise VibrationInputError(f"unknown GFN2 engine option(s) {sorted(unknown)}; known: {sorted(DEFAULTS)}")
-    merged = {**DEFAULTS, **{k: v for k, v in knobs.items() if k != "processes"}}
-    return {"engine": ENGINE_NAME, "engine_version": ENGINE_VERSION, **merged}
+    return engines.engine_parameters(sys.modules[__name__], knobs)
+
+
+def available() -> bool:
+    """True when tblite is installed."""
+    return TBLITE_VERSION is not None
 
 
 def _require_tblite():
@@ -282,59 +284,41 @@ def optimize(model: TightBindingModel, positions_a: np.ndarray, *, gradient_tole
     return best.reshape(-1, 3), energy, gradient
 
 
-@single_threaded_blas
-def vibrations(mol: Chem.Mol, *, conf_id: int = -1, accuracy: float = 0.01, displaced_accuracy: float = 0.1,
-               electronic_temperature_k: float = 300.0,
-               step_a: float = 5.0e-3, gradient_tolerance_kcal_mol_a: float = 0.05,
-               imaginary_tolerance_cm1: float = 20.0, max_reoptimizations: int = 2,
-               processes: int | None = 1) -> ConformerVibrations:
-    """GFN2-xTB harmonic vibrations and IR intensities (km/mol) of one conformer.
+class ConformerModel:
+    """The engine model of one conformer (see library.vibration.engines.EngineModel): GFN2-xTB
+    optimization seeded with the MMFF94 Hessian, then the Hessian and dipole derivatives from
+    central differences of analytic gradients (`step_a`, angstrom) at SCC `accuracy` for the
+    reference and `displaced_accuracy` for the displaced points, over `processes` workers."""
 
-    The starting geometry (usually an MMFF conformer) is optimized with
-    GFN2-xTB until the gradient norm is below `gradient_tolerance_kcal_mol_a`;
-    the Hessian comes from central differences (`step_a`, angstrom) of analytic
-    gradients at SCC `accuracy` (tblite's knob; smaller is tighter) for the
-    reference and `displaced_accuracy` for the displaced points.
-    A mode below -`imaginary_tolerance_cm1` triggers a displaced
-    re-optimization, at most `max_reoptimizations` times, then
-    :class:`NotAMinimumError`.
+    def __init__(self, mol: Chem.Mol, *, accuracy: float, displaced_accuracy: float,
+                 electronic_temperature_k: float, step_a: float, gradient_tolerance_kcal_mol_a: float,
+                 processes: int | None = 1, **_loop_settings):
+        self.mol = mol
+        self.tight_binding = TightBindingModel.from_mol(mol, accuracy=accuracy, displaced_accuracy=displaced_accuracy,
+                                                        electronic_temperature_k=electronic_temperature_k)
+        self.step_a, self.processes = step_a, processes
+        self.tolerance = gradient_tolerance_kcal_mol_a
+
+    def minimize(self, positions_a):
+        positions, energy, gradient = optimize(self.tight_binding, np.asarray(positions_a).reshape(-1, 3),
+                                               mol=self.mol, gradient_tolerance_kcal_mol_a=self.tolerance)
+        return positions.ravel(), float(energy), gradient
+
+    def hessian(self, positions_a):
+        return hessian_and_dipole_derivatives(self.tight_binding, np.asarray(positions_a).reshape(-1, 3),
+                                              step_a=self.step_a, processes=self.processes)
+
+
+def model(mol: Chem.Mol, **settings) -> ConformerModel:
+    """The GFN2-xTB engine model of one conformer (explicit hydrogens, 3D)."""
+    return ConformerModel(mol, **settings)
+
+
+def vibrations(mol: Chem.Mol, *, conf_id: int = -1, **knobs):
+    """GFN2-xTB harmonic vibrations and IR intensities (km/mol) of one conformer: a ConformerVibrations.
+
+    The starting geometry (usually an MMFF conformer) is optimized with GFN2-xTB until the gradient
+    norm is below `gradient_tolerance_kcal_mol_a`; the Hessian comes from central differences; saddle
+    points are re-optimized (see library.vibration.engines.vibrations).
     """
-    from library.vibration.mmff import single_conformer_copy
-
-    work = single_conformer_copy(mol, conf_id)
-    masses = atomic_masses_amu(work)
-    model = TightBindingModel.from_mol(work, accuracy=accuracy, displaced_accuracy=displaced_accuracy,
-                                       electronic_temperature_k=electronic_temperature_k)
-    positions = work.GetConformer().GetPositions()
-    reoptimizations = 0
-    notes: list[str] = []
-    while True:
-        positions, energy, gradient = optimize(model, positions, mol=work,
-                                               gradient_tolerance_kcal_mol_a=gradient_tolerance_kcal_mol_a)
-        hessian, dipole_derivatives = hessian_and_dipole_derivatives(model, positions, step_a=step_a,
-                                                                     processes=processes)
-        modes = analyze(hessian, positions, masses)
-        most_negative = float(modes.frequencies_cm1.min())
-        if most_negative >= -imaginary_tolerance_cm1:
-            break
-        if reoptimizations >= max_reoptimizations:
-            raise NotAMinimumError(
-                f"GFN2-xTB geometry keeps an imaginary mode at {most_negative:.1f} cm^-1 after "
-                f"{reoptimizations} displaced re-optimizations; check the structure")
-        reoptimizations += 1
-        direction = modes.displacements[int(np.argmin(modes.frequencies_cm1))]
-        positions = positions + 0.1 * direction / np.abs(direction).max()
-    residual = float(np.linalg.norm(gradient))
-    notes += quality_notes(reoptimizations=reoptimizations, modes=modes,
-                           imaginary_tolerance_cm1=imaginary_tolerance_cm1, residual_kcal_mol_a=residual,
-                           gradient_tolerance_kcal_mol_a=gradient_tolerance_kcal_mol_a)
-    return ConformerVibrations(
-        engine=ENGINE_NAME,
-        positions_a=positions,
-        energy_kcal=energy,
-        residual_gradient_kcal_mol_a=residual,
-        modes=modes,
-        ir_intensities_km_mol=ir_intensities_km_mol(dipole_derivatives, modes),
-        reoptimizations=reoptimizations,
-        notes=tuple(notes),
-    )
+    return engines.vibrations(sys.modules[__name__], mol, conf_id=conf_id, **knobs)

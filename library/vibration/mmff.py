@@ -22,18 +22,22 @@ the energy alone.
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 import rdkit
 from rdkit import Chem
 from rdkit.Chem import rdForceFieldHelpers
 
-from library.vibration._threads import single_threaded_blas
-from library.vibration.errors import MissingParametersError, NotAMinimumError, VibrationInputError
+from library.vibration import engines
+from library.vibration.engines import single_conformer_copy
+from library.vibration.errors import MissingParametersError, VibrationInputError
 from library.vibration.normal_modes import analyze, atomic_masses_amu
-from library.vibration.result import ConformerVibrations, quality_notes
 
 ENGINE_NAME = "mmff94"
 ENGINE_VERSION = f"MMFF94 (RDKit {rdkit.__version__}); olibra vibration 1"
+DISPLAY_NAME = "MMFF94"
+RUNTIME_KNOBS: tuple[str, ...] = ()
 
 DEFAULTS = {
     "variant": "MMFF94",
@@ -47,34 +51,16 @@ DEFAULTS = {
 
 def parameters(**knobs) -> dict:
     """JSON-able settings of this engine (defaults overridden by `knobs`), hashed for staleness."""
-    unknown = set(knobs) - set(DEFAULTS)
-    if unknown:
-        raise VibrationInputError(f"unknown MMFF engine option(s) {sorted(unknown)}; known: {sorted(DEFAULTS)}")
-    merged = {**DEFAULTS, **knobs}
-    return {"engine": ENGINE_NAME, "engine_version": ENGINE_VERSION, **merged}
+    return engines.engine_parameters(sys.modules[__name__], knobs)
 
 
-def single_conformer_copy(mol: Chem.Mol, conf_id: int = -1) -> Chem.Mol:
-    """A copy of `mol` holding only conformer `conf_id` (default: the first), renumbered 0.
-
-    Raises :class:`VibrationInputError` for a molecule without 3D coordinates
-    or with hydrogens that are not explicit atoms.
-    """
-    if not isinstance(mol, Chem.Mol):
-        raise VibrationInputError(f"expected an RDKit molecule, got {type(mol).__name__}")
-    if mol.GetNumConformers() == 0:
-        raise VibrationInputError("the molecule has no 3D conformer; embed one (library.conformers.ensemble) first")
-    if any(atom.GetTotalNumHs(includeNeighbors=False) for atom in mol.GetAtoms()):
-        raise VibrationInputError(
-            "the molecule has implicit hydrogens; vibrations need them as atoms: use Chem.AddHs(mol, addCoords=True)")
-    conformer = Chem.Conformer(mol.GetConformer(conf_id))
-    if not conformer.Is3D() and mol.GetNumAtoms() > 2:
-        raise VibrationInputError("the conformer is 2D; embed 3D coordinates first")
-    work = Chem.Mol(mol)
-    work.RemoveAllConformers()
-    conformer.SetId(0)
-    work.AddConformer(conformer, assignId=False)
-    return work
+def check_ensemble(ens) -> None:
+    """Refuse an ensemble whose conformers needed another force field (MMFF94 lacks parameters)."""
+    if getattr(ens, "force_field", "MMFF94") != "MMFF94":
+        smiles = Chem.MolToSmiles(Chem.RemoveHs(ens.members[0].mol))
+        raise MissingParametersError(
+            f"MMFF94 has no parameters for {smiles} (its conformers needed {ens.force_field}); "
+            "compute its vibrations with the gfn2 engine instead")
 
 
 class ForceFieldModel:
@@ -93,8 +79,7 @@ class ForceFieldModel:
             elements = sorted({a.GetSymbol() for a in self.mol.GetAtoms()})
             raise MissingParametersError(
                 f"{variant} has no parameters for this material ({Chem.MolToSmiles(Chem.RemoveHs(self.mol))}; "
-                f"elements {', '.join(elements)}); compute its vibrations with the gfn2 engine instead "
-                "(olibra compute vibration --engine gfn2)")
+                f"elements {', '.join(elements)}); compute its vibrations with the gfn2 engine instead")
         # ignoreInterfragInteractions=False: a multi-fragment entry stays one system.
         self.field = rdForceFieldHelpers.MMFFGetMoleculeForceField(
             self.mol, properties, confId=0, ignoreInterfragInteractions=False)
@@ -173,74 +158,66 @@ def _newton_polish(model: ForceFieldModel, x: np.ndarray, hessian: np.ndarray, g
     return x + step_mw * inv_sqrt_m
 
 
-@single_threaded_blas
-def vibrations(mol: Chem.Mol, *, conf_id: int = -1, variant: str = "MMFF94", step_a: float = 1.0e-5,
-               scheme: str = "forward",
-               gradient_tolerance_kcal_mol_a: float = 1.0e-3, imaginary_tolerance_cm1: float = 10.0,
-               max_reoptimizations: int = 3) -> ConformerVibrations:
-    """MMFF94 harmonic vibrations of one conformer (explicit hydrogens, 3D).
+class ConformerModel:
+    """The engine model of one conformer (see library.vibration.engines.EngineModel).
 
-    The conformer is re-minimized tightly with the same force field, its
-    Hessian taken by finite differences of analytic gradients (`scheme`
-    'forward' or 'central', step `step_a` in angstrom) and analyzed.
-    If a mode below -`imaginary_tolerance_cm1` remains (a saddle point), the
-    geometry is pushed along that mode and minimized again, up to
-    `max_reoptimizations` times; if it still remains,
-    :class:`NotAMinimumError` is raised. Imaginary modes above that tolerance
-    (numerical noise) are kept, flagged, and noted. Raises
-    :class:`MissingParametersError` when MMFF94 lacks parameters.
+    Minimization is RDKit's BFGS to tight tolerances, finished by Newton steps with the Hessian
+    when the gradient norm stays above `gradient_tolerance_kcal_mol_a` (RDKit's minimizer
+    typically leaves ~5e-4 kcal/mol/A). The Hessian is recomputed only if the polish moved the
+    geometry by more than 1e-3 A: over smaller moves its change shifts wavenumbers by far less
+    than 0.1 cm^-1. MMFF94 gives no dipole derivatives here.
     """
-    model = ForceFieldModel(mol, variant=variant, conf_id=conf_id)
-    masses = atomic_masses_amu(model.mol)
-    notes: list[str] = []
-    reoptimizations = 0
-    while True:
-        model.minimize()
-        x = model.positions_a()
-        energy, gradient = model.energy_gradient(x)
-        hessian = model.hessian(x, step_a=step_a, scheme=scheme)
-        if np.linalg.norm(gradient) > gradient_tolerance_kcal_mol_a:
-            # Newton steps with this Hessian finish what RDKit's minimizer leaves
-            # (typically a gradient norm of ~5e-4 kcal/mol/A). The Hessian is only
-            # recomputed if the geometry moved by more than 1e-3 A: over smaller
-            # moves its change shifts wavenumbers by far less than 0.1 cm^-1.
+
+    def __init__(self, mol: Chem.Mol, *, variant: str, step_a: float, scheme: str,
+                 gradient_tolerance_kcal_mol_a: float, **_loop_settings):
+        self.field = ForceFieldModel(mol, variant=variant)
+        self.masses = atomic_masses_amu(self.field.mol)
+        self.step_a, self.scheme = step_a, scheme
+        self.tolerance = gradient_tolerance_kcal_mol_a
+        self._hessian_at: tuple[np.ndarray, np.ndarray] | None = None
+
+    def _hessian(self, x: np.ndarray) -> np.ndarray:
+        return self.field.hessian(x, step_a=self.step_a, scheme=self.scheme)
+
+    def minimize(self, positions_a: np.ndarray) -> tuple[np.ndarray, float, np.ndarray]:
+        self.field.set_positions(positions_a)
+        self.field.minimize()
+        x = self.field.positions_a()
+        energy, gradient = self.field.energy_gradient(x)
+        hessian = self._hessian(x)
+        if np.linalg.norm(gradient) > self.tolerance:
             start = x
             for _ in range(5):
-                polished = _newton_polish(model, x, hessian, gradient, masses)
-                energy_new, gradient_new = model.energy_gradient(polished)
+                polished = _newton_polish(self.field, x, hessian, gradient, self.masses)
+                energy_new, gradient_new = self.field.energy_gradient(polished)
                 if np.linalg.norm(gradient_new) >= np.linalg.norm(gradient) or energy_new > energy + 1e-6:
                     break
                 x, energy, gradient = polished, energy_new, gradient_new
-                if np.linalg.norm(gradient) <= gradient_tolerance_kcal_mol_a:
+                if np.linalg.norm(gradient) <= self.tolerance:
                     break
             if np.abs(x - start).max() > 1e-3:
-                model.set_positions(x)
-                hessian = model.hessian(x, step_a=step_a, scheme=scheme)
-        modes = analyze(hessian, x.reshape(-1, 3), masses)
-        most_negative = float(modes.frequencies_cm1.min()) if len(modes.frequencies_cm1) else 0.0
-        if most_negative >= -imaginary_tolerance_cm1:
-            break
-        if reoptimizations >= max_reoptimizations:
-            raise NotAMinimumError(
-                f"MMFF94 geometry keeps an imaginary mode at {most_negative:.1f} cm^-1 after "
-                f"{reoptimizations} displaced re-optimizations; check the structure or try the gfn2 engine "
-                "(--engine gfn2)")
-        reoptimizations += 1
-        # Push 0.1 A (largest atom displacement) downhill along the imaginary mode and minimize again.
-        direction = modes.displacements[int(np.argmin(modes.frequencies_cm1))]
-        direction = direction / np.abs(direction).max()
-        model.set_positions(x + 0.1 * direction.ravel())
-    residual = float(np.linalg.norm(gradient))
-    notes += quality_notes(reoptimizations=reoptimizations, modes=modes,
-                           imaginary_tolerance_cm1=imaginary_tolerance_cm1, residual_kcal_mol_a=residual,
-                           gradient_tolerance_kcal_mol_a=gradient_tolerance_kcal_mol_a)
-    return ConformerVibrations(
-        engine=ENGINE_NAME,
-        positions_a=x.reshape(-1, 3),
-        energy_kcal=energy,
-        residual_gradient_kcal_mol_a=residual,
-        modes=modes,
-        ir_intensities_km_mol=None,
-        reoptimizations=reoptimizations,
-        notes=tuple(notes),
-    )
+                self.field.set_positions(x)
+                hessian = self._hessian(x)
+        self._hessian_at = (x.copy(), hessian)
+        return x, float(energy), gradient
+
+    def hessian(self, positions_a: np.ndarray) -> tuple[np.ndarray, None]:
+        if self._hessian_at is not None and np.array_equal(self._hessian_at[0], positions_a):
+            return self._hessian_at[1], None
+        return self._hessian(np.asarray(positions_a, dtype=float)), None
+
+
+def model(mol: Chem.Mol, **settings) -> ConformerModel:
+    """The MMFF94 engine model of one conformer (explicit hydrogens, 3D)."""
+    return ConformerModel(mol, **settings)
+
+
+def vibrations(mol: Chem.Mol, *, conf_id: int = -1, **knobs):
+    """MMFF94 harmonic vibrations of one conformer (explicit hydrogens, 3D): a ConformerVibrations.
+
+    The conformer is re-minimized tightly with the same force field, its Hessian taken by finite
+    differences of analytic gradients (`scheme` 'forward' or 'central', step `step_a` in angstrom)
+    and analyzed; saddle points are re-optimized (see library.vibration.engines.vibrations).
+    Raises :class:`MissingParametersError` when MMFF94 lacks parameters.
+    """
+    return engines.vibrations(sys.modules[__name__], mol, conf_id=conf_id, **knobs)

@@ -12,17 +12,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from types import ModuleType
 
 import numpy as np
 import scipy.optimize
 import scipy.signal
 from rdkit import Chem
 
-from library import units
-from library.vibration.errors import MissingParametersError, VibrationInputError
-
-ENGINES = ("mmff", "gfn2")
+from library.vibration import engines
+from library.vibration.errors import VibrationInputError
 
 FINGERPRINT_DEFAULTS = {
     "sigma_cm1": 10.0,
@@ -36,19 +33,6 @@ _INTENSITY_WEIGHTINGS = ("none", "ir")
 _NORMALIZATIONS = ("unit", "none", "area", "max")
 
 
-def engine_module(engine: str) -> ModuleType:
-    """The module implementing `engine` ('mmff' or 'gfn2'); it exposes ENGINE_NAME, ENGINE_VERSION, parameters()."""
-    if engine == "mmff":
-        from library.vibration import mmff
-
-        return mmff
-    if engine == "gfn2":
-        from library.vibration import gfn2
-
-        return gfn2
-    raise VibrationInputError(f"unknown vibration engine {engine!r}; choose 'mmff' (fast) or 'gfn2' (GFN2-xTB)")
-
-
 def record_parameters(engine: str = "mmff", *, temperature_k: float = 298.15, **ensemble_knobs) -> dict:
     """JSON-able description of everything a vibration record depends on (hashed for staleness).
 
@@ -60,7 +44,7 @@ def record_parameters(engine: str = "mmff", *, temperature_k: float = 298.15, **
 
     return {
         "ensemble": conformers.parameters(**ensemble_knobs),
-        "engine": engine_module(engine).parameters(),
+        "engine": engines.engine_module(engine).parameters(),
         "temperature_k": float(temperature_k),
         "fingerprint": dict(FINGERPRINT_DEFAULTS),
     }
@@ -177,28 +161,6 @@ class VibrationSpectrum:
             raise VibrationInputError(f"stored vibration record lacks {missing}; recompute it") from missing
 
 
-def boltzmann_weights(energies_kcal: np.ndarray, stereoisomers: np.ndarray, *, temperature_k: float = 298.15
-                      ) -> np.ndarray:
-    """Populations from energies (kcal/mol): Boltzmann within each stereoisomer, stereoisomers equal.
-
-    A material with unassigned stereocenters is an unknown mixture, so each
-    stereoisomer gets the same total weight; within one, weights follow
-    exp(-(E - E_min) / (R T)).
-    """
-    energies = np.asarray(energies_kcal, dtype=float)
-    groups = np.asarray(stereoisomers)
-    if temperature_k <= 0:
-        raise VibrationInputError(f"temperature must be positive (kelvin), got {temperature_k}")
-    rt = units.BOLTZMANN_KCAL_PER_MOL_K * temperature_k
-    weights = np.empty_like(energies)
-    labels = np.unique(groups)
-    for label in labels:
-        members = groups == label
-        factors = np.exp(-(energies[members] - energies[members].min()) / rt)
-        weights[members] = factors / factors.sum() / len(labels)
-    return weights
-
-
 def spectrum(ens, *, engine: str = "mmff", temperature_k: float = 298.15, processes: int | None = 1,
              **engine_knobs) -> VibrationSpectrum:
     """Harmonic spectrum of every conformer of `ens` (a ConformerEnsemble, a Mol or a SMILES).
@@ -215,18 +177,16 @@ def spectrum(ens, *, engine: str = "mmff", temperature_k: float = 298.15, proces
     if not hasattr(ens, "members") or not ens.members:
         raise VibrationInputError("expected a ConformerEnsemble with at least one conformer "
                                   "(library.conformers.ensemble(smiles))")
-    module = engine_module(engine)
-    if engine == "mmff" and getattr(ens, "force_field", "MMFF94") != "MMFF94":
-        smiles = Chem.MolToSmiles(Chem.RemoveHs(ens.members[0].mol))
-        raise MissingParametersError(
-            f"MMFF94 has no parameters for {smiles} (its conformers needed {ens.force_field}); "
-            "compute its vibrations with engine='gfn2' instead")
-    if engine == "gfn2":
+    module = engines.engine_module(engine)
+    check = getattr(module, "check_ensemble", None)
+    if check is not None:
+        check(ens)
+    if "processes" in module.RUNTIME_KNOBS:
         engine_knobs.setdefault("processes", processes)
-    results = [module.vibrations(member.mol, **engine_knobs) for member in ens.members]
+    results = [engines.vibrations(module, member.mol, **engine_knobs) for member in ens.members]
     stereoisomers = np.array([member.stereoisomer for member in ens.members])
     energies = np.array([r.energy_kcal for r in results])
-    weights = boltzmann_weights(energies, stereoisomers, temperature_k=temperature_k)
+    weights = conformer_module.boltzmann_weights(energies, stereoisomers, temperature_k=temperature_k)
     relative = energies.copy()
     for label in np.unique(stereoisomers):
         relative[stereoisomers == label] -= energies[stereoisomers == label].min()
@@ -278,15 +238,51 @@ def _modes_and_amplitudes(spec: VibrationSpectrum, intensity_weighting: str) -> 
     return np.concatenate(positions), np.concatenate(amplitudes)
 
 
+def band_densities(positions_cm1: np.ndarray, amplitudes: np.ndarray, grid: np.ndarray, sigma_cm1: float, *,
+                   reach_sigma: float | None = None) -> np.ndarray:
+    """Rows of smoothed spectra: (R, G) from (R, M) mode positions in cm^-1 (NaN: no mode) and amplitudes.
+
+    Each mode adds its amplitude times an area-normalized Gaussian of standard deviation
+    `sigma_cm1` centered on it, evaluated on `grid` (values in 1/cm^-1 per unit amplitude). The
+    EVA descriptor of J. Comput.-Aided Mol. Des. 11, 143 (1997). With `reach_sigma` only grid points
+    within that many sigma of each mode are touched (an evenly spaced grid is required): the same
+    curve to exp(-reach^2/2) of each band's peak, at a cost independent of the grid length, for
+    building many synthetic spectra at once. Records use the exact form (reach None).
+    """
+    positions = np.atleast_2d(np.asarray(positions_cm1, dtype=float))
+    weights = np.atleast_2d(np.asarray(amplitudes, dtype=float))
+    if positions.shape != weights.shape:
+        raise VibrationInputError(f"positions and amplitudes differ in shape: {positions.shape} and {weights.shape}")
+    rows = positions.shape[0]
+    norm = 1.0 / (sigma_cm1 * math.sqrt(2.0 * math.pi))
+    out = np.zeros((rows, grid.size))
+    if reach_sigma is None:
+        for r in range(rows):
+            present = np.isfinite(positions[r])
+            p_row, a_row = positions[r][present], weights[r][present]
+            for start in range(0, len(p_row), 512):
+                p = p_row[start:start + 512, None]
+                a = a_row[start:start + 512, None]
+                out[r] += (a * norm * np.exp(-0.5 * ((grid[None, :] - p) / sigma_cm1) ** 2)).sum(axis=0)
+        return out
+    step = float(grid[1] - grid[0])
+    reach = int(math.ceil(reach_sigma * sigma_cm1 / step))
+    present = np.isfinite(positions)
+    row_index = np.broadcast_to(np.arange(rows)[:, None], positions.shape)[present]
+    position, amplitude = positions[present], weights[present]
+    centre = np.rint((position - grid[0]) / step).astype(np.int64)
+    flat = out.reshape(-1)
+    for offset in range(-reach, reach + 1):
+        column = centre + offset
+        ok = (column >= 0) & (column < grid.size)
+        value = amplitude[ok] * norm * np.exp(-0.5 * ((grid[column[ok]] - position[ok]) / sigma_cm1) ** 2)
+        flat += np.bincount(row_index[ok] * grid.size + column[ok], weights=value, minlength=flat.size)
+    return out
+
+
 def _smoothed(positions_cm1, amplitudes, grid, sigma_cm1) -> np.ndarray:
     """Sum of area-normalized Gaussians (width sigma_cm1) on `grid`, in 1/cm^-1 per unit amplitude."""
-    curve = np.zeros(grid.shape)
-    norm = 1.0 / (sigma_cm1 * math.sqrt(2.0 * math.pi))
-    for start in range(0, len(positions_cm1), 512):
-        p = positions_cm1[start:start + 512, None]
-        a = amplitudes[start:start + 512, None]
-        curve += (a * norm * np.exp(-0.5 * ((grid[None, :] - p) / sigma_cm1) ** 2)).sum(axis=0)
-    return curve
+    return band_densities(np.asarray(positions_cm1)[None, :], np.asarray(amplitudes)[None, :], grid, sigma_cm1)[0]
 
 
 def fingerprint(spec: VibrationSpectrum, *, sigma_cm1: float = 10.0, min_cm1: float = 0.0, max_cm1: float = 4000.0,

@@ -7,7 +7,7 @@ with RDKit (esters from lists of acids and alcohols, straight-chain and
 1,000 materials with real computed shape and vibration (MMFF94) records. It is
 built once in a folder and reused by later runs.
 
-    from webui import bench
+    from benchmarks import web as bench
     figures = bench.run(None, clients=8, requests=400)
 """
 

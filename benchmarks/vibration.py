@@ -9,7 +9,7 @@ displaced points from the converged reference at `displaced_accuracy`),
 timed in the same run. The load average is printed beside the timings,
 since another process on the machine changes them.
 
-Run: python -m library.vibration.bench  (uses the fixed benchmark set)
+Run: olibra bench vibration  (uses the fixed benchmark set, benchmarks.materials)
 """
 
 from __future__ import annotations
@@ -18,71 +18,22 @@ import os
 import sys
 import tempfile
 import time
-from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
+
+from benchmarks.materials import benchmark_materials, runner_throughput
 
 HESSIAN_MATERIAL = ("HHCB (hexahydro-hexamethyl-cyclopenta[g]benzopyran musk)",
                     "CC1COCc2cc3c(cc21)C(C)(C)C(C)C3(C)C")
 
 
-def _one_material(args) -> tuple[str, int, str, float, float]:
-    smiles, engine = args
-    from library.conformers import ensemble
-    from library.vibration.spectrum import fingerprint, spectrum
-
-    start = time.perf_counter()
-    try:
-        ens = ensemble(smiles)
-        middle = time.perf_counter()
-        fingerprint(spectrum(ens, engine=engine, processes=1))
-        end = time.perf_counter()
-        return smiles, len(ens.members), "", middle - start, end - middle
-    except ValueError as error:
-        now = time.perf_counter()
-        return smiles, 0, str(error), now - start, 0.0
-
-
-def _throughput(smiles_list, engine, processes, say) -> dict:
-    jobs = [(s, engine) for s in smiles_list]
-    start = time.perf_counter()
-    if processes == 1:
-        rows = [_one_material(job) for job in jobs]
-    else:
-        with ProcessPoolExecutor(processes) as pool:
-            rows = list(pool.map(_one_material, jobs))
-    wall = time.perf_counter() - start
-    done = [r for r in rows if not r[2]]
-    failed = [r for r in rows if r[2]]
-    figures = {
-        "materials": len(done),
-        "failed": len(failed),
-        "conformers": sum(r[1] for r in done),
-        "wall_s": wall,
-        "materials_per_s": len(done) / wall if wall > 0 else float("nan"),
-        "ensemble_cpu_s": sum(r[3] for r in done),
-        "spectrum_cpu_s": sum(r[4] for r in done),
-    }
-    say(f"[{engine}] {len(done)} materials ({figures['conformers']} conformers, {len(failed)} failed) "
-        f"in {wall:.2f} s on {processes} processes: {figures['materials_per_s']:.2f} materials/s; "
-        f"per-material time in workers: ensembles {figures['ensemble_cpu_s']:.2f} s, "
-        f"spectra {figures['spectrum_cpu_s']:.2f} s")
-    for smiles, _, message, _, _ in failed[:5]:
-        say(f"    failed {smiles}: {message}")
-    return figures
-
-
 def _hessian_timings(say) -> dict:
-    from rdkit import Chem
-    from rdkit.Chem import AllChem
-
+    from library.conformers import ensemble
     from library.vibration import gfn2
     from library.vibration.normal_modes import analyze, atomic_masses_amu
 
     name, smiles = HESSIAN_MATERIAL
-    mol = Chem.AddHs(Chem.MolFromSmiles(smiles))
-    AllChem.EmbedMolecule(mol, randomSeed=0xC0FFEE)
-    AllChem.MMFFOptimizeMolecule(mol, maxIters=2000)
+    mol = ensemble(smiles, max_conformers=1).members[0].mol
     model = gfn2.TightBindingModel.from_mol(mol)
     start = time.perf_counter()
     positions, _, gradient = gfn2.optimize(model, mol.GetConformer().GetPositions(), mol=mol)
@@ -137,35 +88,31 @@ def _hessian_timings(say) -> dict:
     return figures
 
 
-def run(smiles_list, *, engines=("mmff", "gfn2"), processes: int | None = None, out=sys.stdout,
-        gfn2_materials: int = 4) -> dict:
-    """Print and return throughput per engine and the GFN2 single-conformer Hessian timing.
+def run(*, engines=None, processes: int | None = None, out=sys.stdout, gfn2_materials: int = 4) -> dict:
+    """Print and return materials per second per engine through the real job runner, and the GFN2
+    single-conformer Hessian timing against ASE.
 
-    mmff runs over the whole list; gfn2 (tens of seconds per material) over
-    the first `gfn2_materials` entries only. `processes` defaults to all cores.
+    mmff runs over the whole benchmark set; gfn2 (tens of seconds per material) over its first
+    `gfn2_materials` entries only. `processes` defaults to all cores. Engines not installed are
+    reported and skipped.
     """
+    from library import computations
+    from library.vibration import engines as engine_registry
 
     def say(text: str) -> None:
         print(text, file=out, flush=True)
 
-    processes = processes or os.cpu_count() or 1
-    smiles_list = list(smiles_list)
-    figures: dict = {"processes": processes}
-    say(f"== vibration benchmark: {len(smiles_list)} materials, {processes} processes ==")
+    names = [name for name, _ in benchmark_materials()]
+    engines = tuple(engines or engine_registry.keys())
+    figures: dict = {"processes": processes or os.cpu_count() or 1}
+    say(f"== vibration benchmark: {len(names)} materials ==")
     for engine in engines:
-        subset = smiles_list if engine == "mmff" else smiles_list[:gfn2_materials]
-        figures[engine] = _throughput(subset, engine, processes, say)
-    if "gfn2" in engines:
+        if not engine_registry.get(engine).available():
+            say(f"[{engine}] not installed; skipped")
+            continue
+        subset = names if engine == "mmff" else names[:gfn2_materials]
+        figures[engine] = runner_throughput(computations.Plan(kinds=("vibration",), vibration_engine=engine), subset,
+                                            processes=processes, say=say, label=f"[{engine}] ")
+    if "gfn2" in figures:
         figures["gfn2_hessian"] = _hessian_timings(say)
     return figures
-
-
-def main(argv: list[str] | None = None) -> int:
-    from library.benchmark_set import benchmark_materials
-
-    run([smiles for _, smiles in benchmark_materials()])
-    return 0
-
-
-if __name__ == "__main__":
-    sys.exit(main())

@@ -1,0 +1,76 @@
+"""The fixed benchmark set (seed-catalogue materials with at most 25 heavy atoms) and the real job
+runner measured on it in a scratch catalogue."""
+
+from __future__ import annotations
+
+import csv
+import os
+import platform
+import tempfile
+import time
+from pathlib import Path
+
+from library.catalogue.curation import SEED_DIR
+
+SEED_MATERIALS = SEED_DIR / "materials.csv"
+
+
+def benchmark_materials(*, max_heavy_atoms: int = 25) -> list[tuple[str, str]]:
+    """(name, standardized SMILES) of every seed material within the size limit, in file order."""
+    from library.structures import standardize
+
+    out = []
+    with SEED_MATERIALS.open(encoding="utf-8", newline="") as handle:
+        for row in csv.DictReader(handle):
+            structure = standardize(row["smiles"])
+            if structure.heavy_atom_count <= max_heavy_atoms:
+                out.append((row["name"], structure.smiles))
+    return out
+
+
+def header(what: str, processes: int | None) -> str:
+    """The first line every benchmark prints: machine, cores, processes, Python."""
+    return (f"olibra bench {what}: {platform.machine()} {os.cpu_count()} core(s), "
+            f"{processes or os.cpu_count()} process(es), Python {platform.python_version()}")
+
+
+def runner_throughput(plan, names: list[str], *, processes: int | None = None, say=print,
+                      label: str = "") -> dict:
+    """Materials per second of `olibra compute` as users run it (library.catalogue.jobs.run with the
+    worker processes, writing each material's records) for the seed materials `names`, in a scratch
+    SQLite catalogue; per-material compute seconds come from the stored records."""
+    from sqlalchemy import select
+
+    from library import computations
+    from library.catalogue import jobs, transfer
+    from library.catalogue.curation import load_vocabulary
+    from library.catalogue.database import initialize
+    from library.catalogue.models import ComputedRecord
+
+    wanted = set(names)
+    with tempfile.TemporaryDirectory(prefix="olibra-bench-") as folder:
+        catalogue = initialize(f"sqlite:///{Path(folder) / 'bench.sqlite'}")
+        try:
+            with catalogue.transaction() as session:
+                load_vocabulary(session)
+            rows = [r for r in transfer.read_rows(SEED_MATERIALS) if r.fields.get("name") in wanted]
+            transfer.import_into(catalogue, rows)
+            stamps = computations.stamps(plan)
+            chosen = [m for m in jobs.select_materials(catalogue, stamps, which="all") if m[1] in wanted]
+            started = time.perf_counter()
+            report = jobs.run(catalogue, stamps, computations.worker(plan), chosen, processes=processes)
+            wall = time.perf_counter() - started
+            with catalogue.reading() as session:
+                per_material = [float(s) for s in session.scalars(select(ComputedRecord.elapsed_s).where(
+                    ComputedRecord.kind == stamps[0].kind)) if s is not None]
+        finally:
+            catalogue.dispose()
+    figures = {"materials": report.done, "failed": len(report.failures), "wall_s": wall,
+               "materials_per_s": report.done / wall if wall > 0 else float("nan"),
+               "compute_s_per_material": sum(per_material) / len(per_material) if per_material else float("nan")}
+    say(f"{label}{report.done} materials ({len(report.failures)} failed) through the job runner in {wall:.2f} s "
+        f"on {processes or os.cpu_count()} processes: {figures['materials_per_s']:.2f} materials/s; "
+        f"compute time per material in the workers {figures['compute_s_per_material'] * 1000:.0f} ms")
+    for material_id, name, reason in report.failures[:5]:
+        say(f"    failed #{material_id} {name}: {reason}")
+    return figures

@@ -1,0 +1,203 @@
+"""The similarity index of a catalogue: built from one consistent snapshot, cached on disk.
+
+The index is built from one read transaction (repeatable-read on PostgreSQL) over every material
+with current records of every kind the registered metrics need, and cached on disk keyed by an
+:class:`IndexRevision` (the catalogue revision and the engine stamps), together with what the
+catalogue says about each material (names, odors, status, computed logP). A later call with the
+same revision reads the file and asks the database only for the revision number; any change to
+the catalogue moves the revision and invalidates the file.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from dataclasses import asdict, dataclass
+from pathlib import Path
+
+import numpy as np
+
+from library.errors import Remedy
+from library.search import metrics as metric_registry
+from library.search.errors import SearchError, needs_records
+from library.search.index import SimilarityIndex
+from library.vibration.engines import DEFAULT_ENGINE
+
+PCA_ABOVE = 5000  # materials above which the fingerprints get a compressed first stage
+
+
+@dataclass(frozen=True)
+class MaterialInfo:
+    """What searches show about a catalogue material (molecular weight in g/mol, computed Crippen logP)."""
+
+    id: int
+    name: str
+    smiles: str
+    cas_rn: str | None
+    odors: tuple[str, ...]
+    status: str
+    restricted: bool
+    molecular_weight: float
+    logp: float
+
+
+@dataclass(frozen=True)
+class IndexRevision:
+    """What an index was built from: the catalogue revision and the stamps of the records it read."""
+
+    catalogue_revision: int
+    shape_stamp: str
+    vibration_version: str
+    vibration_stamp: str
+
+    @property
+    def key(self) -> str:
+        """One string for cache files: r<revision>-<shape hash>-<vibration version>-<vibration hash>."""
+        return f"r{self.catalogue_revision}-{self.shape_stamp}-{self.vibration_version}-{self.vibration_stamp}"
+
+    def __str__(self) -> str:
+        return self.key
+
+
+@dataclass
+class CatalogueIndex:
+    """The fitted index plus what the catalogue says about each indexed material."""
+
+    index: SimilarityIndex
+    materials: dict[int, MaterialInfo]
+    unindexed: list[MaterialInfo]  # materials lacking a current record of a needed kind
+    revision: IndexRevision
+    vibration_engine: str
+    from_cache: bool = False
+
+
+def logp(smiles: str) -> float:
+    """Crippen logP (J. Chem. Inf. Comput. Sci. 39, 868 (1999)) of a SMILES, dimensionless."""
+    from rdkit.Chem import Crippen
+
+    from library.structures import mol_from_smiles
+
+    return float(Crippen.MolLogP(mol_from_smiles(smiles)))
+
+
+def record_stamps(vibration_engine: str = DEFAULT_ENGINE) -> dict:
+    """{kind: EngineStamp} the index's records must carry, for the given vibration engine."""
+    from library import computations
+
+    return {s.kind: s for s in computations.stamps(computations.Plan(vibration_engine=vibration_engine))}
+
+
+def _cache_path(catalogue, engine: str, cache_dir: Path | None) -> Path:
+    import platformdirs
+
+    folder = cache_dir or Path(os.environ.get("OLIBRA_CACHE") or platformdirs.user_cache_dir("olibra", appauthor=False))
+    folder.mkdir(parents=True, exist_ok=True)
+    key = hashlib.sha256(str(catalogue.engine.url).encode()).hexdigest()[:16]
+    return folder / f"index-{key}-{engine}.npz"
+
+
+def _snapshot(catalogue):
+    """A session reading one consistent snapshot of the catalogue (repeatable read on PostgreSQL)."""
+    session = catalogue.sessions()
+    if catalogue.engine.dialect.name == "postgresql":
+        session.connection(execution_options={"isolation_level": "REPEATABLE READ"})
+    return session
+
+
+def load_index(catalogue, *, vibration_engine: str = DEFAULT_ENGINE, cache_dir: Path | None = None,
+               use_cache: bool = True) -> CatalogueIndex:
+    """The similarity index over every material with current records of every needed kind."""
+    from sqlalchemy import select
+
+    from library.catalogue.models import CatalogueState
+
+    stamps = record_stamps(vibration_engine)
+    with _snapshot(catalogue) as session, session.begin():
+        number = session.scalar(select(CatalogueState.revision).where(CatalogueState.id == 1))
+        revision = IndexRevision(int(number or 0), stamps["shape"].parameter_hash[:12],
+                                 stamps["vibration"].engine_version, stamps["vibration"].parameter_hash[:12])
+        path = _cache_path(catalogue, vibration_engine, cache_dir) if use_cache else None
+        cached = SimilarityIndex.load(path, revision.key) if path is not None else None
+        if cached is not None and cached.load_extra("materials") is not None:
+            return _from_cache(cached, revision, vibration_engine)
+        infos, ready = _catalogue_state(session, stamps)
+        if not ready:
+            raise SearchError("no material has current shape and vibration records yet; compute them first",
+                              remedy=Remedy.COMPUTE_RECORDS)
+        loaded = _load_features(session, stamps, ready, infos)
+    index = SimilarityIndex(pca_components=64 if len(ready) > PCA_ABOVE else None).fit(
+        np.array(ready, dtype=np.int64), features=loaded,
+        properties={"molecular_weight": [infos[i].molecular_weight for i in ready],
+                    "logp": [infos[i].logp for i in ready],
+                    "descriptors": [set(infos[i].odors) for i in ready],
+                    "status": [infos[i].status for i in ready],
+                    "restricted": [infos[i].restricted for i in ready]})
+    ready_set = set(ready)
+    unindexed = [info for i, info in infos.items() if i not in ready_set]
+    if path is not None:
+        index.save(path, revision.key, extra={
+            "materials": np.asarray(json.dumps([asdict(infos[i]) for i in ready])),
+            "unindexed": np.asarray(json.dumps([asdict(info) for info in unindexed]))})
+    return CatalogueIndex(index, {i: infos[i] for i in ready}, unindexed, revision, vibration_engine)
+
+
+def _from_cache(index: SimilarityIndex, revision: IndexRevision, engine: str) -> CatalogueIndex:
+    def infos(name: str) -> list[MaterialInfo]:
+        rows = json.loads(str(index.load_extra(name)))
+        return [MaterialInfo(**{**row, "odors": tuple(row["odors"])}) for row in rows]
+
+    materials = {info.id: info for info in infos("materials")}
+    return CatalogueIndex(index, materials, infos("unindexed"), revision, engine, from_cache=True)
+
+
+def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int]]:
+    """Every material's MaterialInfo, and the ids of those with current records of every needed kind."""
+    from sqlalchemy import select
+    from sqlalchemy.orm import selectinload
+
+    from library.catalogue import records
+    from library.catalogue.models import Material, MaterialOdor
+
+    materials = session.scalars(select(Material).options(
+        selectinload(Material.odors).selectinload(MaterialOdor.descriptor)).order_by(Material.id))
+    infos = {m.id: MaterialInfo(m.id, m.preferred_name, m.smiles, m.cas_rn,
+                                tuple(sorted(o.descriptor.term for o in m.odors)), m.status, m.restricted,
+                                m.average_mass_g_per_mol, logp(m.smiles))
+             for m in materials}
+    kinds = needed_kinds()
+    state = {kind: records.record_state(session, stamps[kind], include_retired=True) for kind in kinds}
+    ready = [i for i in infos if all(state[kind].get(i) == "current" for kind in kinds)]
+    return infos, ready
+
+
+def needed_kinds() -> tuple[str, ...]:
+    """Record kinds some indexed metric's features come from."""
+    kinds = []
+    for feature in metric_registry.FEATURES.values():
+        if feature.record_kind and feature.record_kind not in kinds:
+            kinds.append(feature.record_kind)
+    return tuple(kinds)
+
+
+def _load_features(session, stamps, ready: list[int], infos: dict[int, MaterialInfo]) -> dict[str, np.ndarray]:
+    """Feature matrices (rows in the order of `ready`) read from the records."""
+    from library.catalogue import records
+
+    by_kind = {kind: records.load_records(session, kind, stamps[kind].engine_name, material_ids=ready,
+                                          names=metric_registry.record_arrays(kind))
+               for kind in needed_kinds()}
+    out = {}
+    for name, feature in metric_registry.FEATURES.items():
+        rows = [metric_registry.feature_row(name, {k: by_kind[k][i].arrays for k in by_kind}, infos[i].smiles)
+                for i in ready]
+        out[name] = rows if feature.record_kind is None else np.stack(rows)
+    return out
+
+
+def indexed_info(cat_index: CatalogueIndex, material_id: int, label: str | None = None) -> MaterialInfo:
+    """The MaterialInfo of an indexed material, or the error saying it lacks records."""
+    info = cat_index.materials.get(material_id)
+    if info is None:
+        raise needs_records(label or f"material #{material_id}")
+    return info

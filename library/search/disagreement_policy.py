@@ -1,0 +1,105 @@
+"""The disagreement list a chemist reads: telling pairs first, then pairs past the thresholds, with the
+observed similarity, the metric it sides with, and the pair flags the catalogue holds.
+
+:mod:`library.search.disagreements` finds pairs in an index; this module decides which pairs are
+telling and attaches what the catalogue knows about them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from library.search import disagreements
+from library.search.catalogue_index import CatalogueIndex, MaterialInfo, load_index
+from library.search.errors import SearchError
+from library.search.index import SimilarityIndex
+from library.search.observed import DESCRIPTORS, observed_similarity
+from library.search.substitutes import build_filter
+
+INDISTINGUISHABLE = 0.999  # a similarity this high means the metric cannot tell the two apart
+RESOLVED = 0.995           # ... while the other metric, at or below this, does
+
+
+@dataclass
+class DisagreementRow:
+    pair: disagreements.Disagreement
+    a: MaterialInfo
+    b: MaterialInfo
+    flags: list[str]
+    basis: str  # 'indistinguishable by shape' | 'indistinguishable by vibration' | 'thresholds'
+
+
+def telling_pairs(index: SimilarityIndex, lists, observed, *, observed_alike: float,
+                  observed_unalike: float) -> list[tuple[disagreements.Disagreement, str]]:
+    """Pairs one metric cannot tell apart while the other can: isotopologues (same shape, other
+    vibrations) and mirror-image pairs (same vibrations, other chiral shape)."""
+    candidates = set()
+    for found in lists:
+        for row, neighbors in zip(found.rows.tolist(), found.neighbor_rows.tolist()):
+            candidates |= {(min(row, o), max(row, o)) for o in neighbors if o >= 0}
+    candidates = sorted(candidates)
+    if not candidates:
+        return []
+    scores = index.pair_scores([a for a, _ in candidates], [b for _, b in candidates])
+    out = []
+    for i, (row_a, row_b) in enumerate(candidates):
+        shape, vibration = float(scores["shape"][i]), float(scores["vibration"][i])
+        if shape >= INDISTINGUISHABLE and vibration <= RESOLVED:
+            direction, basis = disagreements.SHAPE_NOT_VIBRATION, "indistinguishable by shape"
+        elif vibration >= INDISTINGUISHABLE and shape <= RESOLVED:
+            direction, basis = disagreements.VIBRATION_NOT_SHAPE, "indistinguishable by vibration"
+        else:
+            continue
+        id_a, id_b = int(index.ids_[row_a]), int(index.ids_[row_b])
+        value = observed(id_a, id_b) if observed else None
+        alike, sides = disagreements.sides_with(direction, value, observed_alike=observed_alike,
+                                                observed_unalike=observed_unalike)
+        structure = float(scores["structure"][i]) if "structure" in scores else None
+        out.append((disagreements.Disagreement(
+            id_a=id_a, id_b=id_b, direction=direction, score=abs(shape - vibration), shape=shape,
+            vibration=vibration, structure=structure, shape_rank=None, vibration_rank=None, observed=value,
+            observed_alike=alike, sides_with=sides), basis))
+    return out
+
+
+def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float = 0.9,
+                           max_vibration: float = 0.6, min_vibration: float = 0.9, max_shape: float = 0.6,
+                           direction: str = "both", observation: str | None = DESCRIPTORS,
+                           observed_alike: float = 0.5, observed_unalike: float = 0.2,
+                           include_retired: bool = False, vibration_engine: str | None = None,
+                           cat_index: CatalogueIndex | None = None) -> tuple[list[DisagreementRow], str | None]:
+    """Catalogue-wide pairs where shape and vibration disagree, with pair flags.
+
+    First the telling pairs, which one metric cannot tell apart (similarity >= 0.999) while
+    the other can (<= 0.995), by gap; then the pairs past the user's thresholds, by gap.
+    """
+    from library.catalogue import observations
+
+    if cat_index is None:
+        cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
+    index = cat_index.index
+    observed, label = observed_similarity(catalogue, observation)
+    filters = build_filter(include_retired=include_retired, include_restricted=True)
+    try:
+        lists = {metric: index.neighbors(metric, k, filters=filters) for metric in ("shape", "vibration")}
+        found = disagreements.find_disagreements(
+            index, k=k, min_shape=min_shape, max_vibration=max_vibration, min_vibration=min_vibration,
+            max_shape=max_shape, direction=direction, observed=observed, observed_alike=observed_alike,
+            observed_unalike=observed_unalike, filters=filters, shape_neighbors=lists["shape"],
+            vibration_neighbors=lists["vibration"])
+    except ValueError as exc:
+        raise SearchError(str(exc)) from None
+    telling = telling_pairs(index, lists.values(), observed, observed_alike=observed_alike,
+                            observed_unalike=observed_unalike)
+    telling = [(p, basis) for p, basis in telling if direction in ("both", p.direction)]
+    telling_ids = {(min(p.id_a, p.id_b), max(p.id_a, p.id_b)) for p, _ in telling}
+    ordered = sorted(telling, key=lambda item: -item[0].score)
+    ordered += [(p, "thresholds") for p in found if (min(p.id_a, p.id_b), max(p.id_a, p.id_b)) not in telling_ids]
+    with catalogue.reading() as session:
+        flags: dict[tuple[int, int], list[str]] = {}
+        for flag in observations.list_flags(session):
+            flags.setdefault((flag.material_a_id, flag.material_b_id), []).append(flag.kind)
+    rows = [DisagreementRow(pair, cat_index.materials[pair.id_a], cat_index.materials[pair.id_b],
+                            flags.get((min(pair.id_a, pair.id_b), max(pair.id_a, pair.id_b)), []), basis)
+            for pair, basis in ordered]
+    return rows, label

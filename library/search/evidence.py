@@ -1,0 +1,70 @@
+"""The scorecard over a catalogue: which materials are scored, every metric's similarity matrix over
+them, and the observed similarity they are scored against (the statistics are in scorecard.py)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from library.search import scorecard
+from library.search.catalogue_index import CatalogueIndex, load_index
+from library.search.errors import SearchError
+from library.search.index import SimilarityIndex
+from library.search.observed import DESCRIPTORS, observed_similarity
+
+SCORECARD_MAX_MATERIALS = 3000
+
+
+def metric_matrices(index: SimilarityIndex, rows: np.ndarray, *, weight: float = 0.5) -> dict[str, np.ndarray]:
+    """Full similarity matrices (0-1) of the given index rows under every metric the index holds."""
+    return {name: index.similarity_matrix(name, rows, weight=weight) for name in index.metrics()}
+
+
+def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, permutations: int = 999,
+                  resamples: int = 1000, weight: float = 0.5, seed: int = 0, vibration_engine: str | None = None,
+                  cat_index: CatalogueIndex | None = None):
+    """How well each metric predicts observed similarity, side by side (list of MetricScore), the label
+    of the observed similarity and notes."""
+    from library.catalogue import curation, observations
+
+    if cat_index is None:
+        cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
+    index = cat_index.index
+    notes = []
+    descriptor_sets = observed = None
+    if observation == DESCRIPTORS:
+        ids = [i for i in index.ids_.tolist() if cat_index.materials[i].odors]
+    else:
+        with catalogue.reading() as session:
+            try:
+                observed_ids, _, _ = observations.observation_profiles(session, observation)
+            except curation.CurationError as exc:
+                raise SearchError(str(exc), remedy=exc.remedy) from None
+        indexed = set(index.ids_.tolist())
+        ids = [i for i in observed_ids if i in indexed]
+        if len(ids) < len(observed_ids):
+            notes.append(f"{len(observed_ids) - len(ids)} observed material(s) lack computed records")
+    if len(ids) > SCORECARD_MAX_MATERIALS:
+        rng = np.random.default_rng(seed)
+        ids = sorted(rng.choice(ids, SCORECARD_MAX_MATERIALS, replace=False).tolist())
+        notes.append(f"a seeded sample of {SCORECARD_MAX_MATERIALS} materials was scored")
+    if len(ids) < 4:
+        raise SearchError(f"only {len(ids)} material(s) have both observations and computed records; "
+                          "the scorecard needs at least 4")
+    rows = np.array([index.row_of(i) for i in ids])
+    matrices = metric_matrices(index, rows, weight=weight)
+    if observation == DESCRIPTORS:
+        descriptor_sets = [set(cat_index.materials[i].odors) for i in ids]
+        label = "odor descriptor Jaccard"
+    else:
+        correlate, label = observed_similarity(catalogue, observation)
+        observed = np.eye(len(ids))
+        for x in range(len(ids)):
+            for y in range(x + 1, len(ids)):
+                value = correlate(ids[x], ids[y])
+                observed[x, y] = observed[y, x] = 0.0 if value is None else value
+    try:
+        scores = scorecard.score_metrics(matrices, observed=observed, descriptor_sets=descriptor_sets,
+                                         permutations=permutations, resamples=resamples, k=k, seed=seed)
+    except ValueError as exc:
+        raise SearchError(str(exc)) from None
+    return scores, label, notes
