@@ -27,6 +27,7 @@ from rdkit.Chem import rdMolDescriptors, rdShapeAlign
 
 from library.conformers import ConformerEnsemble, ensemble, heavy_atom_mol
 from library.errors import OlibraError
+from library.search.metrics import usr_similarity
 
 __all__ = [
     "ENGINE_NAME",
@@ -250,7 +251,7 @@ def moment_similarity(a_vec, b_vec) -> np.ndarray | float:
         raise ShapeError(f"moment vectors must have equal length, got {a.shape} and {b.shape}")
     if a.shape[0] == 0:
         raise ShapeError("moment vectors are empty")
-    similarity = 1.0 / (1.0 + np.abs(b - a).mean(axis=-1))
+    similarity = usr_similarity(np.abs(b - a).mean(axis=-1))
     return float(similarity) if b.ndim == 1 else similarity
 
 
@@ -290,7 +291,7 @@ def conformer_moments(ens: ConformerEnsemble) -> np.ndarray:
 def best_conformer_similarity(moments_a: np.ndarray, moments_b: np.ndarray) -> float:
     """Largest USR similarity 1/(1 + mean |a - b|) over all conformer pairs of two materials (0-1)."""
     distance = np.abs(moments_a[:, None, :] - moments_b[None, :, :]).mean(axis=-1)
-    return float(1.0 / (1.0 + distance.min()))
+    return float(usr_similarity(distance.min()))
 
 
 def _conformer_descriptors(mol_h: Chem.Mol) -> dict:

@@ -260,3 +260,33 @@ def test_bench_smoke_prints():
     text = out.getvalue()
     assert "median" in text and "peer" in text and "recall" in text
     assert figures[1500]["recall_at_10"] > 0.9
+
+
+def test_concurrent_queries_give_the_serial_answers(data):
+    # a web server asks one fitted index from several threads at once: every answer must equal the
+    # answer to the same question asked alone (first-stage scores, neighbor groupings and BLAS
+    # thread limits are shared state)
+    from concurrent.futures import ThreadPoolExecutor
+
+    ids, shape, fingerprints = data
+
+    def fitted():
+        return SimilarityIndex(pca_components=16, exact_below=0, clusters=8, probes=3).fit(ids, shape, fingerprints)
+
+    questions = [(int(ids[row]), metric) for row in range(0, 400, 9) for metric in ("shape", "vibration", "blend")]
+
+    def ask(index, question):
+        query_id, metric = question
+        hits = index.query(query_id=query_id, metric=metric, weight=0.4, k=8)
+        return [(h.id, round(h.score, 6), tuple(sorted(h.ranks.items()))) for h in hits]
+
+    serial_index = fitted()
+    serial = [ask(serial_index, q) for q in questions]
+    serial_lists = {m: serial_index.neighbors(m, 5).neighbor_rows for m in ("shape", "vibration", "blend")}
+    shared = fitted()  # fresh, so that its caches are filled by competing threads
+    with ThreadPoolExecutor(max_workers=8) as pool:
+        lists = list(pool.map(lambda m: (m, shared.neighbors(m, 5).neighbor_rows), ["shape", "vibration", "blend"] * 3))
+        answers = list(pool.map(lambda q: ask(shared, q), questions * 3))
+    assert answers == serial * 3
+    for metric, rows in lists:
+        np.testing.assert_array_equal(rows, serial_lists[metric])

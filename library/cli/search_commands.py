@@ -232,6 +232,15 @@ def cmd_scorecard(args) -> int:
     return 0
 
 
+def cmd_metrics(args) -> int:
+    rows = [{"metric": m.name, "orders_searches": "yes" if m.indexed else "no (scored on demand)",
+             "built_from": ", ".join(m.components) or "-", "needs_records": ", ".join(m.records) or "-",
+             "description": m.description} for m in metrics.metrics()]
+    emit(rows, ["metric", "orders_searches", "built_from", "needs_records", "description"], args.format,
+         max_width=100)
+    return 0
+
+
 def cmd_spectrum(args) -> int:
     from library.vibration.plot import draw_spectrum
 
@@ -304,6 +313,10 @@ def register(commands) -> None:
     p.add_argument("--limit", type=int, default=50)
     _add_common(p, weight=False)
     p.set_defaults(handler=cmd_disagreements)
+
+    p = commands.add_parser("metrics", help="the similarity metrics olibra scores, with their definitions")
+    p.add_argument("--format", choices=FORMATS, default="table")
+    p.set_defaults(handler=cmd_metrics)
 
     p = commands.add_parser("spectrum", help="draw a material's vibrational spectrum (sticks and smoothed)")
     p.add_argument("material")

@@ -315,16 +315,20 @@ def fingerprint(spec: VibrationSpectrum, *, sigma_cm1: float = 10.0, min_cm1: fl
 
 
 def cosine_similarity(fp_a: np.ndarray, fp_b: np.ndarray) -> float:
-    """Cosine of two fingerprints on the same grid, in [0, 1] (fingerprints are non-negative)."""
+    """The vibration metric's similarity of two fingerprints on the same grid: their cosine, in [0, 1]
+    (fingerprints are non-negative)."""
+    from library.search import metrics
+
     a = np.asarray(fp_a, dtype=np.float64)
     b = np.asarray(fp_b, dtype=np.float64)
     if a.ndim != 1 or a.shape != b.shape:
         raise VibrationInputError(
             f"fingerprints must be 1-D and on the same grid; got shapes {a.shape} and {b.shape}")
-    norm_a, norm_b = np.linalg.norm(a), np.linalg.norm(b)
-    if not (np.isfinite(norm_a) and np.isfinite(norm_b)) or norm_a == 0 or norm_b == 0:
-        raise VibrationInputError("a fingerprint is empty (all zeros) or not finite; recompute it")
-    return float(np.clip(a @ b / (norm_a * norm_b), 0.0, 1.0))
+    try:
+        blocks = [metrics.Block(metrics.prepare_feature("fingerprint", x)) for x in (a, b)]
+    except ValueError:
+        raise VibrationInputError("a fingerprint is empty (all zeros), negative or not finite; recompute it") from None
+    return float(metrics.get("vibration").similarity(*blocks, aligned=True)[0])
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,70 @@
+"""The metric registry: every consumer loops over it, so a new metric needs one class and one
+register() call (the worked example of DEVELOPERS.md, "Adding a metric")."""
+
+from dataclasses import dataclass
+
+import numpy as np
+import pytest
+from scipy.spatial.distance import cdist
+
+from benchmarks import search as bench
+from library.search import metrics
+from library.search.index import SimilarityIndex
+from library.search.metrics import DEFAULT_WEIGHT, Metric, usr_similarity
+
+
+@dataclass(frozen=True)
+class PlainUSRMetric(Metric):
+    """USR similarity of the 12 all-atom moments that open the USRCAT vector (J. Cheminform. 4, 27 (2012))."""
+
+    def similarity(self, query, catalogue, *, aligned=False, weight=DEFAULT_WEIGHT):
+        a, b = query["shape"][..., :12], catalogue["shape"][..., :12]
+        l1 = np.abs(a - b).sum(axis=-1) if aligned else cdist(a, b, "cityblock")
+        return usr_similarity(l1 / 12).astype(np.float32)
+
+
+@pytest.fixture
+def with_plain_usr(monkeypatch):
+    monkeypatch.setattr(metrics, "_REGISTRY", dict(metrics._REGISTRY))
+    return metrics.register(PlainUSRMetric("usr", "USR similarity of the 12 all-atom moments",
+                                           features=("shape",), records=("shape",)))
+
+
+def test_registered_metrics_and_their_definitions():
+    assert metrics.names() == ("shape", "overlay", "vibration", "blend", "structure")
+    assert metrics.names(indexed=True) == ("shape", "vibration", "blend", "structure")
+    assert all(m.description for m in metrics.metrics())
+    # the USR formula of J. Comput. Chem. 28, 1711 (2007): S = 1 / (1 + mean |a - b|)
+    assert usr_similarity(2.0) == pytest.approx(1 / 3)
+    assert metrics.tanimoto(3, 5, 4) == pytest.approx(0.5)  # c / (a + b - c), from the definition
+    with pytest.raises(ValueError, match="already registered"):
+        metrics.register(metrics.get("shape"))
+    with pytest.raises(ValueError, match="must be one of"):
+        metrics.get("smell")
+
+
+def test_a_new_metric_reaches_every_consumer(with_plain_usr):
+    from library.cli import build_parser
+
+    ids, shape, fingerprints = bench.synthetic_catalogue(300, seed=5)
+    index = SimilarityIndex(pca_components=8).fit(ids, shape, fingerprints)
+    assert "usr" in index.metrics()
+    reference = 1.0 / (1.0 + cdist(shape[7:8, :12].astype(np.float64), shape[:, :12].astype(np.float64),
+                                   "cityblock")[0] / 12)  # scipy as the outside reference
+    reference[7] = -np.inf
+    hits = index.query(query_id=7, metric="usr", k=5)
+    assert [h.row for h in hits] == np.argsort(-reference, kind="stable")[:5].tolist()
+    assert all("usr" in h.scores and "usr" in h.ranks for h in hits)
+    assert index.pair_scores([1, 2], [3, 4])["usr"] == pytest.approx(
+        [reference_pair(shape, 1, 3), reference_pair(shape, 2, 4)], abs=1e-6)
+    matrix = index.similarity_matrix("usr", [0, 1, 2])
+    assert matrix[0, 1] == pytest.approx(reference_pair(shape, 0, 1), abs=1e-6)
+    lists = index.neighbors("usr", 3)  # no candidate space: scanned exactly
+    assert lists.exact and lists.neighbor_rows[7][0] == hits[0].row
+    parser = build_parser()
+    arguments = parser.parse_args(["search", "Citral", "--metric", "usr"])
+    assert arguments.metric == "usr"
+
+
+def reference_pair(shape, a, b):
+    return 1.0 / (1.0 + np.abs(shape[a, :12].astype(np.float64) - shape[b, :12]).mean())
