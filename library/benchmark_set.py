@@ -4,16 +4,14 @@ from __future__ import annotations
 
 import csv
 
-from library.catalogue.curation import SEED_DIR
+from library.seed_catalog import MATERIALS_FILE
 from library.structures import standardize
-
-SEED_MATERIALS = SEED_DIR / "materials.csv"
 
 
 def benchmark_materials(*, max_heavy_atoms: int = 25) -> list[tuple[str, str]]:
     """(name, standardized SMILES) of every seed material within the size limit, in file order."""
     out = []
-    with SEED_MATERIALS.open(encoding="utf-8", newline="") as handle:
+    with MATERIALS_FILE.open(encoding="utf-8", newline="") as handle:
         for row in csv.DictReader(handle):
             structure = standardize(row["smiles"])
             if structure.heavy_atom_count <= max_heavy_atoms:

@@ -27,15 +27,15 @@ from library import computations
 from library.catalogue import accounts, curation, records, transfer
 from library.catalogue.database import Catalogue, initialize
 from library.catalogue.models import AuditEntry, BackgroundJob, Material, PairFlag, User
+from library.seed_catalog import MATERIALS_FILE
 from webui import SecretKeyMissing, create_app
 from webui.auth import SESSION_ENDPOINTS, WRITE_METHODS
 from webui.background import mark_abandoned
 
-SEED_FILE = Path(__file__).resolve().parents[1] / "seed_catalog" / "materials.csv"
 SEED_NAMES = ("(R)-(+)-Limonene", "(S)-(-)-Limonene", "Citral", "Geranial", "Neral", "Octanal",
               "Linalool", "Eugenol")
 PASSWORD = "correct horse battery"
-# Real aroma materials from seed_catalog/materials.csv that the fixture leaves out, for adding.
+# Real aroma materials from library/seed_catalog/materials.csv that the fixture leaves out, for adding.
 VANILLIN = "COc1cc(C=O)ccc1O"
 COUMARIN = "O=c1ccc2ccccc2o1"
 MENTHOL = "CC(C)[C@@H]1CC[C@@H](C)C[C@H]1O"
@@ -46,7 +46,7 @@ EXPECTED_WRITE_ENDPOINTS = {
 
 
 def seed_rows(names=SEED_NAMES):
-    return [row for row in transfer.read_rows(SEED_FILE) if row.fields["name"] in names]
+    return [row for row in transfer.read_rows(MATERIALS_FILE) if row.fields["name"] in names]
 
 
 def load_catalogue(url: str, names=SEED_NAMES):

@@ -20,9 +20,9 @@ from library import computations
 from library.catalogue import accounts, curation, jobs, observations, transfer
 from library.catalogue.database import Catalogue, initialize
 from library.catalogue.models import PairFlag
+from library.seed_catalog import MATERIALS_FILE
 from webui import create_app
 
-SEED_FILE = Path(__file__).resolve().parents[1] / "seed_catalog" / "materials.csv"
 SEARCH_SEED_NAMES = ("Citral", "Geranyl nitrile", "Citronellal", "Citronellyl nitrile", "(R)-(-)-Carvone",
                      "(S)-(+)-Carvone", "Benzaldehyde", "Benzaldehyde-d6 (demo)", "Octanal", "Octanenitrile",
                      "Eugenol", "Vanillin")
@@ -42,7 +42,7 @@ def computed_catalogue_template(tmp_path_factory) -> Path:
     try:
         with catalogue.transaction() as session:
             curation.load_vocabulary(session)
-            rows = [r for r in transfer.read_rows(SEED_FILE) if r.fields["name"] in SEARCH_SEED_NAMES]
+            rows = [r for r in transfer.read_rows(MATERIALS_FILE) if r.fields["name"] in SEARCH_SEED_NAMES]
             report = transfer.import_rows(session, rows, actor="seed")
             assert report.committed and report.count("added") == len(SEARCH_SEED_NAMES)
         plan = computations.Plan()
