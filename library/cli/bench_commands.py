@@ -5,8 +5,6 @@ from __future__ import annotations
 import os
 import platform
 
-from library.benchmark_set import benchmark_materials
-
 
 def _header(what: str, processes: int | None) -> None:
     print(f"olibra bench {what}: {platform.machine()} {os.cpu_count()} core(s), "
@@ -14,6 +12,8 @@ def _header(what: str, processes: int | None) -> None:
 
 
 def _benchmark_smiles(what: str, processes: int | None) -> list[str]:
+    from library.benchmark_set import benchmark_materials
+
     materials = benchmark_materials()
     _header(what, processes)
     print(f"benchmark set: {len(materials)} seed materials with at most 25 heavy atoms")
@@ -65,7 +65,7 @@ def cmd_bench(args) -> int:
 
 
 def register(commands) -> None:
-    p = commands.add_parser("bench", help="print performance figures (shape, vibration, search, web)")
+    p = commands.add_parser("bench")
     p.add_argument("what", choices=sorted(BENCHES))
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
     p.add_argument("--sizes", type=int, nargs="+", help="search: synthetic catalogue sizes (default 10k 100k 1M)")

@@ -89,7 +89,7 @@ DEMO_STEPS: list = [first_search, serve_web]
 
 
 def register(commands) -> None:
-    p = commands.add_parser("demo", help="build a demo catalogue from the seed files and compute its records")
+    p = commands.add_parser("demo")
     p.add_argument("--folder", default="olibra-demo", help="folder for the demo catalogue (default ./olibra-demo)")
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
     p.add_argument("--port", type=int, default=8150, help="web interface port on 127.0.0.1 (default 8150)")
