@@ -48,7 +48,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "user": ("web_commands", "web interface accounts: add, list, change password"),
     "serve": ("web_commands", "serve the web interface (waitress; 127.0.0.1:8150 by default)"),
     "demo": ("demo_commands", "build a demo catalogue from the seed files and compute its records"),
-    "bench": ("bench_commands", "print performance figures (shape, vibration, search, web)"),
+    "bench": ("bench_commands", "print performance figures (shape, vibration, search, web, startup)"),
 }
 # One module per area; each has register(commands) adding the options of its commands.
 COMMAND_MODULES = list(dict.fromkeys(module for module, _ in COMMANDS.values()))
