@@ -10,9 +10,8 @@ import tempfile
 import time
 from pathlib import Path
 
-from library.catalogue.curation import SEED_DIR
+from library.seed_catalog import MATERIALS_FILE as SEED_MATERIALS
 
-SEED_MATERIALS = SEED_DIR / "materials.csv"
 
 
 def benchmark_materials(*, max_heavy_atoms: int = 25) -> list[tuple[str, str]]:

@@ -105,7 +105,7 @@ def build_catalogue(folder: Path | None = None, *, target: int = TARGET_MATERIAL
     from library import computations
     from library.catalogue import accounts, curation, jobs, transfer
     from library.catalogue.database import initialize
-    from library.cli.demo_commands import load_seed
+    from library.catalogue.seed import load_seed
 
     folder = Path(folder or default_folder())
     folder.mkdir(parents=True, exist_ok=True)

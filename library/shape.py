@@ -27,7 +27,6 @@ from rdkit.Chem import rdMolDescriptors, rdShapeAlign
 
 from library.conformers import ConformerEnsemble, ensemble, heavy_atom_mol
 from library.errors import OlibraError
-from library.search.metrics import usr_similarity
 
 __all__ = [
     "ENGINE_NAME",
@@ -251,6 +250,8 @@ def moment_similarity(a_vec, b_vec) -> np.ndarray | float:
         raise ShapeError(f"moment vectors must have equal length, got {a.shape} and {b.shape}")
     if a.shape[0] == 0:
         raise ShapeError("moment vectors are empty")
+    from library.search.metrics import usr_similarity
+
     similarity = usr_similarity(np.abs(b - a).mean(axis=-1))
     return float(similarity) if b.ndim == 1 else similarity
 
@@ -290,6 +291,8 @@ def conformer_moments(ens: ConformerEnsemble) -> np.ndarray:
 
 def best_conformer_similarity(moments_a: np.ndarray, moments_b: np.ndarray) -> float:
     """Largest USR similarity 1/(1 + mean |a - b|) over all conformer pairs of two materials (0-1)."""
+    from library.search.metrics import usr_similarity
+
     distance = np.abs(moments_a[:, None, :] - moments_b[None, :, :]).mean(axis=-1)
     return float(usr_similarity(distance.min()))
 

@@ -1,12 +1,13 @@
 """The `olibra` command end to end: one clear line on errors, never a traceback."""
 
+import argparse
 import json
 import subprocess
 import sys
 
 import pytest
 
-from library.cli import main
+from library.cli import COMMANDS, build_parser, main
 
 MIXED_CSV = """name,smiles,cas,odor,structure_source,cas_source,odor_source
 Linalool,CC(C)=CCCC(C)(O)C=C,78-70-6,floral|citrus:0.4,from memory,from memory,from memory
@@ -25,6 +26,7 @@ def olibra(tmp_path, capsys, monkeypatch):
         code = main(["--db", url, *args])
         captured = capsys.readouterr()
         return code, captured.out, captured.err
+    run.url = url
 
     code, out, err = run("init")
     assert code == 0, err
@@ -107,3 +109,55 @@ def test_health_page(tmp_path):
     client = create_app({"OLIBRA_DB": url, "TESTING": True}).test_client()
     response = client.get("/health")
     assert response.status_code == 200 and response.get_json() == {"status": "ok", "materials": 0}
+
+
+# Libraries that cost most of the start-up time (RDKit, SciPy, scikit-learn, SQLAlchemy, Alembic,
+# Flask, Matplotlib, tblite, pandas) and olibra's own heavy layers.
+HEAVY_MODULES = {"rdkit", "numpy", "scipy", "sklearn", "sqlalchemy", "alembic", "flask", "matplotlib", "tblite",
+                 "pandas", "webui", "library.search", "library.catalogue.database", "library.vibration"}
+
+
+def modules_loaded_by(argv: list[str]) -> set[str]:
+    """The modules loaded after `olibra ARGV` ran in a fresh interpreter (help output and exit included)."""
+    code = ("import json, sys\nfrom library.cli import main\n"
+            "try:\n    main(sys.argv[1:])\nexcept SystemExit:\n    pass\n"
+            "print(json.dumps(sorted(sys.modules)), file=sys.stderr)\n")
+    result = subprocess.run([sys.executable, "-c", code, *argv], capture_output=True, text=True, timeout=120)
+    return set(json.loads(result.stderr.strip().splitlines()[-1]))
+
+
+def test_help_loads_no_heavy_library():
+    loaded = modules_loaded_by(["--help"])
+    assert "library.cli" in loaded
+    assert not loaded & HEAVY_MODULES  # a submodule loads its package, so package names suffice
+
+
+def test_show_loads_no_search_web_or_plotting_library(olibra):
+    olibra("add", "CC(C)=CCCC(C)(O)C=C", "--name", "Linalool")
+    loaded = modules_loaded_by(["--db", olibra.url, "show", "Linalool"])
+    assert "library.catalogue.database" in loaded  # it did open the catalogue
+    slow = {"sklearn", "flask", "matplotlib", "tblite", "pandas", "webui", "library.search", "scipy.stats",
+            "scipy.signal", "scipy.optimize"}
+    assert not loaded & slow
+
+
+def test_every_command_is_declared_with_its_help_and_registered():
+    parser = build_parser(complete=True)  # raises when a module registers a command not in COMMANDS or misses one
+    commands = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+    assert list(commands.choices) == list(COMMANDS)
+    listing = parser.format_help()
+    for name, (_, help_text) in COMMANDS.items():
+        assert help_text.split()[0] in listing
+        chosen = commands.choices[name]
+        nested = [a for a in chosen._actions if isinstance(a, argparse._SubParsersAction)]
+        assert chosen.get_default("handler") or nested, name
+    with pytest.raises(ValueError, match="must be declared in COMMANDS"):
+        commands.add_parser("not-a-command")
+
+
+def test_a_command_help_registers_its_options_on_use(capsys):
+    with pytest.raises(SystemExit) as stopped:
+        main(["search", "--help"])
+    assert stopped.value.code == 0
+    out = capsys.readouterr().out
+    assert out.startswith("usage: olibra search") and "--metric" in out and "--rerank-depth" in out

@@ -1,4 +1,4 @@
-"""The shipped seed catalogue (seed_catalog/) checked against RDKit, the CAS check-digit rule and its own format.
+"""The shipped seed catalogue (library/seed_catalog/) checked against RDKit, the CAS check-digit rule and its own format.
 
 Outside references used here: RDKit's SMILES parser, InChI (the IUPAC reference
 implementation bundled with RDKit) and CIP labeler; the published CAS Registry
@@ -18,11 +18,8 @@ from rdkit import Chem
 from rdkit.Chem import rdCIPLabeler
 from rdkit.Chem.rdMolDescriptors import CalcMolFormula
 
+from library.seed_catalog import MATERIALS_FILE, SEED_DIR, VOCABULARY_FILE
 from library.structures import StructureError, cas_check_digit, check_cas, standardize
-
-SEED_DIR = Path(__file__).resolve().parents[1] / "seed_catalog"
-MATERIALS_FILE = SEED_DIR / "materials.csv"
-VOCABULARY_FILE = SEED_DIR / "odor_vocabulary.csv"
 
 COLUMNS = ["name", "synonyms", "cas", "smiles", "formula", "family", "odor",
            "structure_source", "cas_source", "odor_source", "notes"]

@@ -21,21 +21,21 @@ from pathlib import Path
 
 import pytest
 from rdkit import Chem
-from sqlalchemy import create_engine, func, select, text
+from sqlalchemy import func, select
 
 from library import computations
 from library.catalogue import accounts, curation, records, transfer
 from library.catalogue.database import Catalogue, initialize
 from library.catalogue.models import AuditEntry, BackgroundJob, Material, PairFlag, User
 from webui import SecretKeyMissing, create_app
-from webui.auth import SESSION_ENDPOINTS, WRITE_METHODS
 from webui.background import mark_abandoned
 
-SEED_FILE = Path(__file__).resolve().parents[1] / "seed_catalog" / "materials.csv"
+from catalogue_helpers import fresh_postgres_url, seed_rows
+from web_helpers import PASSWORD, add_web_accounts, csrf_token, sign_in, write_requests
+
 SEED_NAMES = ("(R)-(+)-Limonene", "(S)-(-)-Limonene", "Citral", "Geranial", "Neral", "Octanal",
               "Linalool", "Eugenol")
-PASSWORD = "correct horse battery"
-# Real aroma materials from seed_catalog/materials.csv that the fixture leaves out, for adding.
+# Real aroma materials from library/seed_catalog/materials.csv that the fixture leaves out, for adding.
 VANILLIN = "COc1cc(C=O)ccc1O"
 COUMARIN = "O=c1ccc2ccccc2o1"
 MENTHOL = "CC(C)[C@@H]1CC[C@@H](C)C[C@H]1O"
@@ -45,19 +45,13 @@ EXPECTED_WRITE_ENDPOINTS = {
 }
 
 
-def seed_rows(names=SEED_NAMES):
-    return [row for row in transfer.read_rows(SEED_FILE) if row.fields["name"] in names]
-
-
 def load_catalogue(url: str, names=SEED_NAMES):
     catalogue = initialize(url)
     with catalogue.transaction() as session:
         curation.load_vocabulary(session)
         report = transfer.import_rows(session, seed_rows(names), actor="seed")
         assert report.committed and report.count("added") == len(names)
-    with accounts.bookkeeping_sessions(catalogue.engine).begin() as session:
-        accounts.create_user(session, "rhea", PASSWORD, "reader")
-        accounts.create_user(session, "cora", PASSWORD, "curator")
+    add_web_accounts(catalogue)
     return catalogue
 
 
@@ -79,20 +73,6 @@ BACKENDS = ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
 on_both_backends = pytest.mark.parametrize("backend", BACKENDS, indirect=True)
 
 
-def fresh_postgres_url() -> str:
-    url = os.environ.get("OLIBRA_TEST_POSTGRES_URL")
-    if not url:
-        if os.environ.get("OLIBRA_REQUIRE_POSTGRES"):
-            pytest.fail("OLIBRA_REQUIRE_POSTGRES is set but OLIBRA_TEST_POSTGRES_URL is not")
-        pytest.skip("no PostgreSQL server configured: set OLIBRA_TEST_POSTGRES_URL to run these")
-    engine = create_engine(url)
-    with engine.begin() as connection:
-        connection.execute(text("DROP SCHEMA IF EXISTS public CASCADE"))
-        connection.execute(text("CREATE SCHEMA public"))
-    engine.dispose()
-    return url
-
-
 @pytest.fixture
 def catalogue(backend, tmp_path, template_file):
     if backend == "sqlite":
@@ -106,26 +86,9 @@ def catalogue(backend, tmp_path, template_file):
 
 
 @pytest.fixture
-def app(catalogue):
-    application = create_app({"OLIBRA_DB": catalogue.url, "TESTING": True, "OLIBRA_JOB_PROCESSES": 1})
-    yield application
-    state = application.extensions["olibra"]
-    if state._catalogue is not None:
-        state._catalogue.dispose()
-
-
-@pytest.fixture
-def client(app):
-    return app.test_client()
-
-
-@pytest.fixture
 def runner(catalogue, monkeypatch, capsys):
-    """Runs `olibra ...` (with the web commands registered) on the test catalogue: (exit code, out, err)."""
+    """Runs `olibra ...` on the test catalogue: (exit code, out, err)."""
     from library import cli
-
-    if "web_commands" not in cli.COMMAND_MODULES:
-        monkeypatch.setattr(cli, "COMMAND_MODULES", [*cli.COMMAND_MODULES, "web_commands"])
 
     def run(*argv, stdin: str | None = None):
         if stdin is not None:
@@ -134,18 +97,6 @@ def runner(catalogue, monkeypatch, capsys):
         captured = capsys.readouterr()
         return code, captured.out, captured.err
     return run
-
-
-def token_of(client) -> str:
-    page = client.get("/sign-in")
-    return re.search(r'name="csrf-token" content="([^"]+)"', page.text).group(1)
-
-
-def sign_in(client, username: str) -> str:
-    token = token_of(client)
-    response = client.post("/sign-in", data={"username": username, "password": PASSWORD, "csrf_token": token})
-    assert response.status_code == 302, response.text
-    return token_of(client)
 
 
 def material_count(catalogue) -> int:
@@ -158,19 +109,6 @@ def material_id(catalogue, name: str) -> int:
         return session.scalar(select(Material.id).where(Material.preferred_name == name))
 
 
-def write_requests(app):
-    """(endpoint, method, url) of every state-changing route except signing in and out."""
-    adapter = app.url_map.bind("localhost")
-    found = []
-    for rule in app.url_map.iter_rules():
-        for method in sorted(rule.methods & WRITE_METHODS):
-            if rule.endpoint in SESSION_ENDPOINTS:
-                continue
-            found.append((rule.endpoint, method, adapter.build(rule.endpoint, {a: 1 for a in rule.arguments},
-                                                               method=method)))
-    return found
-
-
 # --- who may do what -------------------------------------------------------------------------------
 
 @on_both_backends
@@ -181,7 +119,7 @@ def test_every_write_route_refuses_anonymous_readers_and_tokenless_curators(app,
     body = {"name": "Vanillin", "structure": VANILLIN, "term": "marine", "csrf_token": "x"}
 
     anonymous = app.test_client()
-    token = token_of(anonymous)
+    token = csrf_token(anonymous)
     reader = app.test_client()
     reader_token = sign_in(reader, "rhea")
     curator = app.test_client()
@@ -216,7 +154,7 @@ def test_reading_needs_a_signed_in_user(client):
 
 
 def test_sign_in_rejects_a_wrong_password_and_ignores_foreign_redirects(client):
-    token = token_of(client)
+    token = csrf_token(client)
     response = client.post("/sign-in", data={"username": "cora", "password": "wrong password", "csrf_token": token})
     assert response.status_code == 400 and "user name or password is not right" in response.text
     response = client.post("/sign-in?next=//elsewhere.example/x",
@@ -658,7 +596,7 @@ def test_error_pages_are_ours_and_show_no_traceback(app, client):
 def test_an_uninitialized_catalogue_gets_a_clear_page(tmp_path):
     application = create_app({"OLIBRA_DB": f"sqlite:///{tmp_path / 'empty.sqlite'}", "TESTING": True})
     client = application.test_client()
-    response = client.post("/sign-in", data={"username": "cora", "password": PASSWORD, "csrf_token": token_of(client)})
+    response = client.post("/sign-in", data={"username": "cora", "password": PASSWORD, "csrf_token": csrf_token(client)})
     assert response.status_code == 503 and "no olibra catalogue yet" in response.text
     # the web gives its own hint, never a command to type
     assert "must create or upgrade the catalogue" in response.text and "olibra init" not in response.text
@@ -710,11 +648,8 @@ def test_serve_runs_a_real_server(catalogue):
     with socket.socket() as probe:
         probe.bind(("127.0.0.1", 0))
         port = probe.getsockname()[1]
-    code = ("import sys, library.cli as c\n"
-            "'web_commands' in c.COMMAND_MODULES or c.COMMAND_MODULES.append('web_commands')\n"
-            "sys.exit(c.main(sys.argv[1:]))\n")
     env = {k: v for k, v in __import__("os").environ.items() if k != "OLIBRA_SECRET_KEY"}
-    process = subprocess.Popen([sys.executable, "-c", code, "--db", catalogue.url, "serve", "--port", str(port)],
+    process = subprocess.Popen([sys.executable, "-m", "library.cli", "--db", catalogue.url, "serve", "--port", str(port)],
                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
     try:
         line = process.stdout.readline()

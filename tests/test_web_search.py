@@ -16,47 +16,13 @@ from pathlib import Path
 import pytest
 from sqlalchemy import func, select
 
-from library import computations
-from library.catalogue import accounts, curation, jobs, observations, transfer
-from library.catalogue.database import Catalogue, initialize
+from library.catalogue import curation, observations
+from library.catalogue.database import Catalogue
 from library.catalogue.models import PairFlag
-from webui import create_app
 
-SEED_FILE = Path(__file__).resolve().parents[1] / "seed_catalog" / "materials.csv"
-SEARCH_SEED_NAMES = ("Citral", "Geranyl nitrile", "Citronellal", "Citronellyl nitrile", "(R)-(-)-Carvone",
-                     "(S)-(+)-Carvone", "Benzaldehyde", "Benzaldehyde-d6 (demo)", "Octanal", "Octanenitrile",
-                     "Eugenol", "Vanillin")
-PASSWORD = "correct horse battery"
+from web_helpers import computed_catalogue_template, write_requests
+
 CAUTION_WORDS = ("not a safety or regulatory finding", "IFRA Standards", "safety", "allergen labelling")
-
-
-def computed_catalogue_template(tmp_path_factory) -> Path:
-    """A SQLite catalogue of SEARCH_SEED_NAMES with current records and users rhea (reader) and cora
-    (curator); built once per test session (shared with the browser tests) and copied by each user."""
-    path = tmp_path_factory.getbasetemp() / "web-search-template" / "catalogue.sqlite"
-    if path.exists():
-        return path
-    path.parent.mkdir(parents=True, exist_ok=True)
-    building = path.with_suffix(".building")
-    catalogue = initialize(f"sqlite:///{building}")
-    try:
-        with catalogue.transaction() as session:
-            curation.load_vocabulary(session)
-            rows = [r for r in transfer.read_rows(SEED_FILE) if r.fields["name"] in SEARCH_SEED_NAMES]
-            report = transfer.import_rows(session, rows, actor="seed")
-            assert report.committed and report.count("added") == len(SEARCH_SEED_NAMES)
-        plan = computations.Plan()
-        stamps = computations.stamps(plan)
-        job = jobs.run(catalogue, stamps, computations.worker(plan), jobs.select_materials(catalogue, stamps),
-                       processes=2)
-        assert job.done == len(SEARCH_SEED_NAMES) and not job.failures, job.failures
-        with accounts.bookkeeping_sessions(catalogue.engine).begin() as session:
-            accounts.create_user(session, "rhea", PASSWORD, "reader")
-            accounts.create_user(session, "cora", PASSWORD, "curator")
-    finally:
-        catalogue.dispose()
-    building.rename(path)
-    return path
 
 
 @pytest.fixture(scope="module")
@@ -71,39 +37,6 @@ def catalogue(template, tmp_path):
     opened = Catalogue(f"sqlite:///{target}")
     yield opened
     opened.dispose()
-
-
-@pytest.fixture
-def app(catalogue, tmp_path):
-    application = create_app({"OLIBRA_DB": catalogue.url, "TESTING": True,
-                              "OLIBRA_INDEX_CACHE_DIR": str(tmp_path / "index-cache")})
-    yield application
-    state = application.extensions["olibra"]
-    if state._catalogue is not None:
-        state._catalogue.dispose()
-
-
-def token_of(client) -> str:
-    return re.search(r'name="csrf-token" content="([^"]+)"', client.get("/sign-in").text).group(1)
-
-
-def signed_in(app, username: str):
-    client = app.test_client()
-    token = token_of(client)
-    response = client.post("/sign-in", data={"username": username, "password": PASSWORD, "csrf_token": token})
-    assert response.status_code == 302, response.text
-    client.token = token_of(client)
-    return client
-
-
-@pytest.fixture
-def reader(app):
-    return signed_in(app, "rhea")
-
-
-@pytest.fixture
-def curator(app):
-    return signed_in(app, "cora")
 
 
 def material_id(catalogue, name: str) -> int:
@@ -137,8 +70,6 @@ def test_search_pages_need_a_signed_in_user(app):
 
 def test_flag_routes_are_walked_by_the_write_route_test(app):
     """tests/test_web_interface.py walks every write route in app.url_map; ours are among them."""
-    from test_web_interface import write_requests
-
     endpoints = {endpoint for endpoint, _, _ in write_requests(app)}
     assert {"disagreements.flag", "search_api.add_flag"} <= endpoints
 

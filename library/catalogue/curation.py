@@ -25,10 +25,9 @@ from library.catalogue.models import (
     Synonym,
 )
 from library.errors import OlibraError, Remedy
+from library.seed_catalog import VOCABULARY_FILE
 from library.structures import StandardStructure, check_cas, standardize
 
-SEED_DIR = Path(__file__).resolve().parents[2] / "seed_catalog"
-VOCABULARY_FILE = SEED_DIR / "odor_vocabulary.csv"
 CURATED_FIELDS = ("structure", "preferred_name", "synonyms", "cas_rn", "olfactive_family", "notes")
 MAX_NAME_CHARS = 200
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import os
 from contextlib import contextmanager
+from importlib import resources
 from pathlib import Path
 from typing import Iterator
 
@@ -29,7 +30,8 @@ from library.errors import OlibraError, Remedy
 ENVIRONMENT_VARIABLE = "OLIBRA_DB"
 DEFAULT_FILE_NAME = "catalogue.sqlite"
 SQLITE_BUSY_TIMEOUT_MS = 10_000
-MIGRATIONS_DIR = Path(__file__).resolve().parents[2] / "migrations"
+# The Alembic environment and versions are package data (library/catalogue/migrations/).
+MIGRATIONS_DIR = Path(str(resources.files("library.catalogue") / "migrations"))
 
 
 class CatalogueError(OlibraError):

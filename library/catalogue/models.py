@@ -1,6 +1,6 @@
 """The catalogue's tables (SQLAlchemy 2.0 typed declarative models).
 
-The schema changes only through Alembic revisions in `migrations/`; a test
+The schema changes only through Alembic revisions in `library/catalogue/migrations/`; a test
 proves these models and the migrations agree. Column names that hold a
 quantity carry its unit.
 """

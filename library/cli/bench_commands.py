@@ -49,8 +49,16 @@ def cmd_bench_web(args) -> int:
     return 0
 
 
+def cmd_bench_startup(args) -> int:
+    from benchmarks import startup
+
+    _header("startup", None)
+    startup.run(args.db, repeats=args.repeats, material=args.material or startup.DEFAULT_MATERIAL)
+    return 0
+
+
 BENCHES = {"shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
-           "web": cmd_bench_web}
+           "web": cmd_bench_web, "startup": cmd_bench_startup}
 
 
 def cmd_bench(args) -> int:
@@ -58,11 +66,15 @@ def cmd_bench(args) -> int:
 
 
 def register(commands) -> None:
-    p = commands.add_parser("bench", help="print performance figures (shape, vibration, search, web)")
+    p = commands.add_parser("bench")
     p.add_argument("what", choices=sorted(BENCHES))
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
     p.add_argument("--sizes", type=int, nargs="+", help="search: synthetic catalogue sizes (default 10k 100k 1M)")
     p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
     p.add_argument("--skip-catalogue", action="store_true",
                    help="search: skip the recall figure on the real catalogue (--db, with computed records)")
+    p.add_argument("--repeats", type=int, default=7,
+                   help="startup: timed runs per command, after one warm-up run (default 7)")
+    p.add_argument("--material",
+                   help="startup: the material to show and search for (default Citral, in the demo catalogue)")
     p.set_defaults(handler=cmd_bench)

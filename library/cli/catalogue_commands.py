@@ -216,10 +216,10 @@ def cmd_status(args) -> int:
 
 
 def register(commands) -> None:
-    p = commands.add_parser("init", help="create or upgrade the catalogue and load the odor vocabulary")
+    p = commands.add_parser("init")
     p.set_defaults(handler=cmd_init)
 
-    p = commands.add_parser("add", help="add one material from a SMILES, molfile or InChI")
+    p = commands.add_parser("add")
     p.add_argument("structure", help="SMILES, InChI, or a path to a molfile")
     p.add_argument("--name", required=True, help="preferred name")
     p.add_argument("--cas", help="CAS Registry Number (check digit verified)")
@@ -234,19 +234,19 @@ def register(commands) -> None:
     p.add_argument("--max-heavy-atoms", type=int, default=None, help="heavy-atom limit (default 60)")
     p.set_defaults(handler=_add_with_file)
 
-    p = commands.add_parser("show", help="show one material by id, name, synonym, CAS RN or InChIKey")
+    p = commands.add_parser("show")
     p.add_argument("key")
     p.add_argument("--history", action="store_true", help="include the audit trail")
     p.set_defaults(handler=cmd_show)
 
-    p = commands.add_parser("list", help="list materials")
+    p = commands.add_parser("list")
     p.add_argument("--all", action="store_true", help="include retired materials")
     p.add_argument("--family", help="only this olfactive family")
     p.add_argument("--odor", help="only materials with this odor descriptor")
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_list)
 
-    p = commands.add_parser("import", help="import materials from a CSV or SDF file")
+    p = commands.add_parser("import")
     p.add_argument("file")
     p.add_argument("--keep-good", action="store_true",
                    help="store the good rows even when some rows are rejected")
@@ -259,13 +259,13 @@ def register(commands) -> None:
     p.add_argument("--max-heavy-atoms", type=int, default=None)
     p.set_defaults(handler=cmd_import)
 
-    p = commands.add_parser("export", help="export the catalogue as CSV, SDF or JSON")
+    p = commands.add_parser("export")
     p.add_argument("--format", choices=("csv", "sdf", "json"), default="csv")
     p.add_argument("--out", help="file to write (default: standard output)")
     p.add_argument("--active-only", action="store_true", help="leave out retired materials")
     p.set_defaults(handler=cmd_export)
 
-    p = commands.add_parser("vocabulary", help="list or extend the odor descriptor vocabulary")
+    p = commands.add_parser("vocabulary")
     p.add_argument("action", choices=("list", "add"))
     p.add_argument("term", nargs="?")
     p.add_argument("--family")
@@ -273,7 +273,7 @@ def register(commands) -> None:
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=_vocabulary_checked)
 
-    p = commands.add_parser("status", help="retire, reactivate, restrict or unrestrict a material")
+    p = commands.add_parser("status")
     p.add_argument("key")
     p.add_argument("set", choices=("active", "retired", "restricted", "unrestricted"))
     p.set_defaults(handler=cmd_status)

@@ -53,8 +53,7 @@ def cmd_status(args) -> int:
 
 
 def register(commands) -> None:
-    p = commands.add_parser(
-        "compute", help="compute shape and/or vibration records (missing or stale ones by default)")
+    p = commands.add_parser("compute")
     p.add_argument("what", choices=("shape", "vibration", "all"))
     p.add_argument("materials", nargs="*", metavar="MATERIAL",
                    help="only these materials (id, name, synonym, CAS RN or InChIKey)")
@@ -65,6 +64,6 @@ def register(commands) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(handler=cmd_compute)
 
-    p = commands.add_parser("compute-status", help="count current, stale and missing computed records")
+    p = commands.add_parser("compute-status")
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_status)

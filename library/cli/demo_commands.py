@@ -6,23 +6,13 @@ import time
 from pathlib import Path
 
 from library import computations
-from library.catalogue import curation, jobs, transfer
+from library.catalogue import curation, jobs
 from library.catalogue.database import initialize
+from library.catalogue.seed import load_seed
 from library.cli.output import progress_bar
-from library.errors import OlibraError
+from library.seed_catalog import SEED_DIR
 
-SEED_MATERIALS = curation.SEED_DIR / "materials.csv"
 DEMO_QUERY = "Citral"
-
-
-def load_seed(catalogue) -> transfer.ImportReport:
-    """Import the seed catalogue (idempotent: materials already present are left as they are)."""
-    report = transfer.import_into(catalogue, transfer.read_rows(SEED_MATERIALS))
-    if report.rejected:
-        first = report.rejected[0]
-        raise OlibraError(f"the seed catalogue has a bad row {first.row} ({first.name}: {first.message}); "
-                          "this is a bug in olibra's seed files")
-    return report
 
 
 def cmd_demo(args) -> int:
@@ -63,7 +53,7 @@ def first_search(catalogue, args) -> None:
     print()
     outcome = find_substitutes(catalogue, DEMO_QUERY, metric="blend", weight=0.5, k=8)
     print_substitutes(outcome)
-    print(f"\nnext: point olibra at this catalogue and follow seed_catalog/DEMO.md, e.g.\n"
+    print(f"\nnext: point olibra at this catalogue and follow {SEED_DIR / 'DEMO.md'}, e.g.\n"
           f"  export OLIBRA_DB={catalogue.url}\n"
           f"  olibra compare Citral 'Geranyl nitrile'")
 
@@ -99,7 +89,7 @@ DEMO_STEPS: list = [first_search, serve_web]
 
 
 def register(commands) -> None:
-    p = commands.add_parser("demo", help="build a demo catalogue from the seed files and compute its records")
+    p = commands.add_parser("demo")
     p.add_argument("--folder", default="olibra-demo", help="folder for the demo catalogue (default ./olibra-demo)")
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
     p.add_argument("--port", type=int, default=8150, help="web interface port on 127.0.0.1 (default 8150)")

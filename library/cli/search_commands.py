@@ -271,7 +271,7 @@ def _add_common(p, *, weight=True, fmt=True) -> None:
 
 
 def register(commands) -> None:
-    p = commands.add_parser("search", help="rank substitutes for a material or a new structure")
+    p = commands.add_parser("search")
     p.add_argument("query", help="material (name, id, CAS RN, InChIKey) or a structure (SMILES, InChI)")
     p.add_argument("--metric", choices=metrics.names(indexed=True), default="blend",
                    help="; ".join(f"{m.name}: {m.description}" for m in metrics.metrics(indexed=True)))
@@ -292,7 +292,7 @@ def register(commands) -> None:
     _add_common(p)
     p.set_defaults(handler=cmd_search)
 
-    p = commands.add_parser("compare", help="every metric for a pair, with overlay and band matching")
+    p = commands.add_parser("compare")
     p.add_argument("a")
     p.add_argument("b")
     p.add_argument("--bands", type=int, default=12, help="band lines to print (default 12)")
@@ -300,7 +300,7 @@ def register(commands) -> None:
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(handler=cmd_compare)
 
-    p = commands.add_parser("disagreements", help="pairs where shape and vibration disagree")
+    p = commands.add_parser("disagreements")
     p.add_argument("--direction", choices=("both",) + DIRECTIONS, default="both")
     p.add_argument("--min-shape", type=float, default=0.9)
     p.add_argument("--max-vibration", type=float, default=0.6)
@@ -314,11 +314,11 @@ def register(commands) -> None:
     _add_common(p, weight=False)
     p.set_defaults(handler=cmd_disagreements)
 
-    p = commands.add_parser("metrics", help="the similarity metrics olibra scores, with their definitions")
+    p = commands.add_parser("metrics")
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_metrics)
 
-    p = commands.add_parser("spectrum", help="draw a material's vibrational spectrum (sticks and smoothed)")
+    p = commands.add_parser("spectrum")
     p.add_argument("material")
     p.add_argument("--out", required=True, help="file to write, .svg or .png")
     p.add_argument("--against", metavar="MATERIAL", help="draw a second material mirrored below")
@@ -327,18 +327,18 @@ def register(commands) -> None:
     _add_common(p, weight=False, fmt=False)
     p.set_defaults(handler=cmd_spectrum)
 
-    p = commands.add_parser("flag", help="flag a pair of materials")
+    p = commands.add_parser("flag")
     p.add_argument("a")
     p.add_argument("b")
     p.add_argument("--kind", required=True, choices=observations.FLAG_KINDS)
     p.add_argument("--note")
     p.set_defaults(handler=cmd_flag)
 
-    p = commands.add_parser("flags", help="list pair flags")
+    p = commands.add_parser("flags")
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_flags)
 
-    p = commands.add_parser("observations", help="import measured data (panel profiles, receptor responses)")
+    p = commands.add_parser("observations")
     p.add_argument("action", choices=("import",))
     p.add_argument("file")
     p.add_argument("--set", required=True, help="name of the data set")
@@ -349,7 +349,7 @@ def register(commands) -> None:
     p.add_argument("--replace", action="store_true", help="replace a data set of the same name")
     p.set_defaults(handler=cmd_observations)
 
-    p = commands.add_parser("scorecard", help="how well each metric predicts observed similarity")
+    p = commands.add_parser("scorecard")
     p.add_argument("--observed", default="descriptors", help="'descriptors' (default) or a data set name")
     p.add_argument("-k", type=int, default=5, help="k of precision at k (default 5)")
     p.add_argument("--permutations", type=int, default=999)

@@ -131,7 +131,7 @@ def cmd_serve(args) -> int:
 
 
 def register(commands) -> None:
-    p = commands.add_parser("user", help="web interface accounts: add, list, change password")
+    p = commands.add_parser("user")
     actions = p.add_subparsers(dest="action", metavar="ACTION", parser_class=type(p))
     actions.required = True
     q = actions.add_parser("add", help="add a user (the password is asked for, or read with --password-stdin)")
@@ -148,7 +148,7 @@ def register(commands) -> None:
     q.add_argument("--password-stdin", action="store_true", help="read the password from standard input")
     q.set_defaults(handler=cmd_user_password)
 
-    p = commands.add_parser("serve", help="serve the web interface (waitress; 127.0.0.1:8150 by default)")
+    p = commands.add_parser("serve")
     p.add_argument("--host", default=DEFAULT_HOST,
                    help=f"address to listen on (default {DEFAULT_HOST}: this machine only)")
     p.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"port (default {DEFAULT_PORT})")

@@ -26,7 +26,6 @@ import os
 import sys
 
 import numpy as np
-import scipy.optimize
 from rdkit import Chem
 
 from library import units
@@ -260,6 +259,8 @@ def optimize(model: TightBindingModel, positions_a: np.ndarray, *, gradient_tole
     Euclidean norm is at most the tolerance (kcal/mol/A). Returns positions
     (N, 3) in angstrom, energy (kcal/mol) and flat gradient (kcal/mol/A).
     """
+    import scipy.optimize  # on use: importing it takes about 0.2 s, too long for every `olibra` start
+
     x0 = np.asarray(positions_a, dtype=float).ravel()
     component_tolerance = gradient_tolerance_kcal_mol_a / np.sqrt(x0.size)
     inverse_hessian = _initial_inverse_hessian(mol, x0)

@@ -14,8 +14,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.optimize
-import scipy.signal
 from rdkit import Chem
 
 from library.vibration import engines
@@ -355,6 +353,8 @@ def main_bands(spec: VibrationSpectrum, n: int | None = 8, *, sigma_cm1: float =
     top = curve.max(initial=0.0)
     if top <= 0:
         return ()
+    import scipy.signal  # on use: importing it takes about 0.3 s, too long for every `olibra` start
+
     peaks, _ = scipy.signal.find_peaks(curve, height=min_relative_height * top)
     order = peaks[np.argsort(-curve[peaks], kind="stable")]
     if n is not None:
@@ -399,6 +399,8 @@ def match_bands(spec_a: VibrationSpectrum, spec_b: VibrationSpectrum, *, toleran
         b = np.array([b.position_cm1 for b in bands_b])
         distance = np.abs(a[:, None] - b[None, :])
         cost = np.where(distance <= tolerance_cm1, distance, 1e6)
+        import scipy.optimize  # on use, like scipy.signal above
+
         rows, cols = scipy.optimize.linear_sum_assignment(cost)
         for i, j in zip(rows, cols):
             if distance[i, j] <= tolerance_cm1:

@@ -18,12 +18,12 @@ from werkzeug.serving import make_server
 
 from library.catalogue import accounts, curation, transfer
 from library.catalogue.database import Catalogue, initialize
+from library.seed_catalog import MATERIALS_FILE
 from webui import create_app
 
 CHROMIUM = Path("/usr/bin/chromium")
 CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
                  "--disable-component-update", "--disable-sync", "--no-first-run"]
-SEED_FILE = Path(__file__).resolve().parents[2] / "seed_catalog" / "materials.csv"
 SCREENSHOTS = Path(__file__).resolve().parents[2] / "artifacts" / "screenshots"
 SEED_NAMES = ("(R)-(+)-Limonene", "(S)-(-)-Limonene", "Citral", "Geranial", "Octanal", "Linalool", "Eugenol")
 PASSWORD = "browser test password"
@@ -50,7 +50,7 @@ def live_server(tmp_path_factory):
     catalogue = initialize(f"sqlite:///{folder / 'catalogue.sqlite'}")
     with catalogue.transaction() as session:
         curation.load_vocabulary(session)
-        rows = [r for r in transfer.read_rows(SEED_FILE) if r.fields["name"] in SEED_NAMES]
+        rows = [r for r in transfer.read_rows(MATERIALS_FILE) if r.fields["name"] in SEED_NAMES]
         assert transfer.import_rows(session, rows, actor="seed").count("added") == len(SEED_NAMES)
     with accounts.bookkeeping_sessions(catalogue.engine).begin() as session:
         accounts.create_user(session, "cora", PASSWORD, "curator")

@@ -9,12 +9,13 @@ import shutil
 import threading
 
 import pytest
-from test_web_search import PASSWORD, computed_catalogue_template
 from werkzeug.serving import make_server
 
 from library.catalogue import observations
 from library.catalogue.database import Catalogue
 from webui import create_app
+
+from web_helpers import CURATOR, PASSWORD, computed_catalogue_template
 
 
 @pytest.fixture(scope="module")
@@ -44,7 +45,7 @@ def curator_page(browser, search_server):
     page.console_errors = []
     page.on("console", lambda m: m.type == "error" and page.console_errors.append(m.text))
     page.goto("/")
-    page.fill("#username", "cora")
+    page.fill("#username", CURATOR)
     page.fill("#password", PASSWORD)
     page.click("button:has-text('Sign in')")
     page.wait_for_url("**/")

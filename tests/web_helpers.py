@@ -1,0 +1,87 @@
+"""Helpers shared by the web tests (Flask test client and browser): accounts, CSRF tokens, signing in, and
+the computed search catalogue. Imported by name; the fixtures built on them are in conftest.py."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from library import computations
+from library.catalogue import accounts, curation, jobs, transfer
+from library.catalogue.database import initialize
+from webui.auth import SESSION_ENDPOINTS, WRITE_METHODS
+
+from catalogue_helpers import seed_rows
+
+PASSWORD = "correct horse battery"
+READER, CURATOR = "rhea", "cora"  # the accounts every web test catalogue has
+# Seed materials of the computed search catalogue: a mirror-image pair (the carvones) and an
+# isotopologue pair (benzaldehyde and its d6 form), the pairs the two hypotheses treat differently.
+SEARCH_SEED_NAMES = ("Citral", "Geranyl nitrile", "Citronellal", "Citronellyl nitrile", "(R)-(-)-Carvone",
+                     "(S)-(+)-Carvone", "Benzaldehyde", "Benzaldehyde-d6 (demo)", "Octanal", "Octanenitrile",
+                     "Eugenol", "Vanillin")
+
+
+def csrf_token(client) -> str:
+    """The CSRF token the sign-in page hands this client's session."""
+    return re.search(r'name="csrf-token" content="([^"]+)"', client.get("/sign-in").text).group(1)
+
+
+def sign_in(client, username: str) -> str:
+    """Sign `client` in through the form; returns the session's CSRF token for later writes."""
+    token = csrf_token(client)
+    response = client.post("/sign-in", data={"username": username, "password": PASSWORD, "csrf_token": token})
+    assert response.status_code == 302, response.text
+    return csrf_token(client)
+
+
+def signed_in_client(app, username: str):
+    """A new test client of `app` signed in as `username`, its CSRF token in `.token`."""
+    client = app.test_client()
+    client.token = sign_in(client, username)
+    return client
+
+
+def write_requests(app):
+    """(endpoint, method, url) of every state-changing route except signing in and out."""
+    adapter = app.url_map.bind("localhost")
+    found = []
+    for rule in app.url_map.iter_rules():
+        for method in sorted(rule.methods & WRITE_METHODS):
+            if rule.endpoint in SESSION_ENDPOINTS:
+                continue
+            found.append((rule.endpoint, method, adapter.build(rule.endpoint, {a: 1 for a in rule.arguments},
+                                                               method=method)))
+    return found
+
+
+def add_web_accounts(catalogue) -> None:
+    with accounts.bookkeeping_sessions(catalogue.engine).begin() as session:
+        accounts.create_user(session, READER, PASSWORD, "reader")
+        accounts.create_user(session, CURATOR, PASSWORD, "curator")
+
+
+def computed_catalogue_template(tmp_path_factory) -> Path:
+    """A SQLite catalogue of SEARCH_SEED_NAMES with current records and the web accounts; built once per
+    test session (the web search tests and the browser search tests share it) and copied by each user."""
+    path = tmp_path_factory.getbasetemp() / "web-search-template" / "catalogue.sqlite"
+    if path.exists():
+        return path
+    path.parent.mkdir(parents=True, exist_ok=True)
+    building = path.with_suffix(".building")
+    catalogue = initialize(f"sqlite:///{building}")
+    try:
+        with catalogue.transaction() as session:
+            curation.load_vocabulary(session)
+            report = transfer.import_rows(session, seed_rows(SEARCH_SEED_NAMES), actor="seed")
+            assert report.committed and report.count("added") == len(SEARCH_SEED_NAMES)
+        plan = computations.Plan()
+        stamps = computations.stamps(plan)
+        job = jobs.run(catalogue, stamps, computations.worker(plan), jobs.select_materials(catalogue, stamps),
+                       processes=2)
+        assert job.done == len(SEARCH_SEED_NAMES) and not job.failures, job.failures
+        add_web_accounts(catalogue)
+    finally:
+        catalogue.dispose()
+    building.rename(path)
+    return path
