@@ -35,9 +35,9 @@ BAD_SMILES = [
     ("   ", "empty"),
     ("CC O", "single token"),                              # name glued to the SMILES
     ("CCO ethanol", "single token"),
-    ("[Fe]", "not supported"),
-    ("CC[Hg]C", "not supported"),
-    ("[U]", "not supported"),
+    ("[Fe]", "metal"),
+    ("CC[Hg]C", "organometallic"),
+    ("[U]", "metal"),
     ("CCCCO.c1ccccc1CCCCCC", "mixture"),                     # two organic components
     ("CCCCCCO.CCCCCCCCN", "mixture"),
     ("C" * 61, "more than the limit"),                     # too many heavy atoms
