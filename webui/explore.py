@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from flask import Response
 
 from library.catalogue import curation
+from library.catalogue.transfer import spreadsheet_safe
 from library.errors import OlibraError
 from library.search import service
 from library.search.disagreements import DIRECTIONS
@@ -389,17 +390,6 @@ def _finite(value: float | None) -> float | None:
 # ---------------------------------------------------------------- CSV
 
 
-def _cell(value):
-    """A CSV cell; text that a spreadsheet would run as a formula is prefixed with an apostrophe."""
-    if isinstance(value, list):
-        value = "|".join(map(str, value))
-    if value is None:
-        return ""
-    if isinstance(value, str) and value[:1] in ("=", "+", "-", "@"):
-        return "'" + value
-    return value
-
-
 def csv_response(rows: list[dict], columns: list[str], filename: str, *, caution: str | None = None) -> Response:
     """A CSV download; lists are joined with '|'. With `caution`, a first line '# caution: ...'."""
     buffer = io.StringIO()
@@ -408,7 +398,7 @@ def csv_response(rows: list[dict], columns: list[str], filename: str, *, caution
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(columns)
     for row in rows:
-        writer.writerow([_cell(row.get(c)) for c in columns])
+        writer.writerow([spreadsheet_safe(row.get(c)) for c in columns])
     response = Response(buffer.getvalue(), mimetype="text/csv")
     response.headers["Content-Disposition"] = f'attachment; filename="{filename}"'
     return response
