@@ -14,6 +14,7 @@ signed-in reader or curator. See README.md, "Web interface and JSON API".
 
 from __future__ import annotations
 
+import datetime as dt
 import os
 import threading
 from collections import OrderedDict
@@ -153,9 +154,15 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         OLIBRA_JOB_PROCESSES=None,  # worker processes for a recompute (default: one per core)
         OLIBRA_VIBRATION_ENGINE="mmff",  # vibration records the search pages use
         OLIBRA_INDEX_CACHE_DIR=None,  # folder of the on-disk index cache (default: the user cache folder)
+        # A session ends this long after signing in, or after this long unused.
+        OLIBRA_SESSION_HOURS=float(os.environ.get("OLIBRA_SESSION_HOURS") or 8),
+        OLIBRA_IDLE_MINUTES=float(os.environ.get("OLIBRA_IDLE_MINUTES") or 60),
+        OLIBRA_SIGN_IN_FREE_ATTEMPTS=5,  # failed sign-ins per account and address before the back-off starts
+        OLIBRA_SIGN_IN_MAX_DELAY_S=900,  # longest back-off
     )
     if config:
         app.config.update(config)
+    app.config["PERMANENT_SESSION_LIFETIME"] = dt.timedelta(hours=float(app.config["OLIBRA_SESSION_HOURS"]))
     if not app.config.get("SECRET_KEY"):
         if not app.testing:
             raise SecretKeyMissing(
@@ -183,6 +190,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         return response
 
     from webui import (
+        accounts,
         api,
         auth,
         browse,
@@ -199,7 +207,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     auth.init_app(app)
     errors.init_app(app)
-    for module in (auth, browse, curation, jobs, substitutes, compare, disagreements, scorecard, api,
+    for module in (auth, accounts, browse, curation, jobs, substitutes, compare, disagreements, scorecard, api,
                    search_api, health):
         app.register_blueprint(module.blueprint)
     return app

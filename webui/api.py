@@ -8,16 +8,16 @@ PATCH or DELETE. Errors are {"error": {"status": N, "message": "..."}}.
 from __future__ import annotations
 
 from flask import Blueprint, abort, current_app, jsonify, request
-from flask_login import current_user, login_user, logout_user
+from flask_login import current_user
 from flask_wtf.csrf import generate_csrf
 from sqlalchemy import select
 from sqlalchemy.orm import selectinload
 
-from library.catalogue import accounts, curation
+from library.catalogue import curation
 from library.catalogue.models import BackgroundJob, Material, MaterialOdor
 from library.errors import OlibraError
 from webui import db_session, queries, web_state, write_transaction
-from webui.auth import SignedInUser
+from webui.auth import SignInThrottled, checked_sign_in, end_session, start_session
 from webui.curation import draft_from, run_import
 from webui.jobs import record_counts, start
 
@@ -47,16 +47,20 @@ def session_state():
 @blueprint.post("/session")
 def sign_in():
     data = json_body()
-    user = accounts.authenticate(db_session(), str(data.get("username") or ""), str(data.get("password") or ""))
+    try:
+        user = checked_sign_in(str(data.get("username") or ""), str(data.get("password") or ""))
+    except SignInThrottled as exc:
+        return (jsonify(error={"status": 429, "message": str(exc), "retry_after_s": exc.wait_s}), 429,
+                {"Retry-After": str(exc.wait_s)})
     if user is None:
         return jsonify(error={"status": 401, "message": "the user name or password is not right"}), 401
-    login_user(SignedInUser.of(user))
+    start_session(user)
     return jsonify(_session_state())
 
 
 @blueprint.delete("/session")
 def sign_out():
-    logout_user()
+    end_session()
     return jsonify(signed_in=False)
 
 
