@@ -26,7 +26,7 @@ from flask_wtf.csrf import CSRFProtect
 from sqlalchemy.orm import Session, sessionmaker
 
 from library.catalogue.accounts import bookkeeping_sessions
-from library.catalogue.database import Catalogue, resolve_url
+from library.catalogue.database import WRITE_OPTION, Catalogue, resolve_url
 from library.errors import OlibraError
 
 SECRET_KEY_VARIABLE = "OLIBRA_SECRET_KEY"
@@ -229,10 +229,23 @@ def db_session() -> Session:
     return g.db_session
 
 
+def begin_write() -> Session:
+    """The request's session in a fresh write transaction (BEGIN IMMEDIATE on SQLite).
+
+    Whatever the request read so far (its user, the form's material) was read in a deferred
+    transaction; that one is ended first, so the write waits for other writers instead of failing
+    on a stale snapshot. Objects loaded before are reloaded on next use, inside the write."""
+    session = db_session()
+    if session.in_transaction():
+        session.rollback()
+    session.connection(execution_options={WRITE_OPTION: True})
+    return session
+
+
 @contextmanager
 def write_transaction() -> Iterator[Session]:
-    """The request's session as one unit of work: committed on success, rolled back on any error."""
-    session = db_session()
+    """The request's session as one write transaction: committed on success, rolled back on any error."""
+    session = begin_write()
     try:
         yield session
         session.commit()

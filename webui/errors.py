@@ -7,7 +7,7 @@ from flask_wtf.csrf import CSRFError
 from sqlalchemy.exc import OperationalError
 from werkzeug.exceptions import HTTPException, InternalServerError
 
-from library.catalogue.database import CatalogueError
+from library.catalogue.database import CatalogueBusy, CatalogueError, busy_message, is_busy
 from library.errors import OlibraError
 
 TITLES = {
@@ -64,10 +64,21 @@ def init_app(app) -> None:
 
     @app.errorhandler(OperationalError)
     def database_problem(exc: OperationalError):
+        if is_busy(exc):
+            response, status = _answer(503, f"{busy_message()[0].upper()}{busy_message()[1:]}.", plain=True)
+            response = app.make_response((response, status))
+            response.headers["Retry-After"] = "5"
+            return response
         app.logger.exception("database problem")
         first_line = str(exc.orig).strip().splitlines()[0] if exc.orig else "no detail"
         return _answer(503, f"The catalogue database did not answer ({first_line}); nothing was changed. "
                             "Try again in a moment.", plain=True)
+
+    @app.errorhandler(CatalogueBusy)
+    def catalogue_busy(exc: CatalogueBusy):
+        response = app.make_response(_answer(503, str(exc), plain=True))
+        response.headers["Retry-After"] = "5"
+        return response
 
     @app.errorhandler(OlibraError)
     def user_problem(exc: OlibraError):

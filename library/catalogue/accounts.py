@@ -22,6 +22,7 @@ from sqlalchemy.engine import Engine
 from sqlalchemy.orm import Session, sessionmaker
 from werkzeug.security import check_password_hash, generate_password_hash
 
+from library.catalogue.database import writer_engine
 from library.catalogue.models import USER_ROLES, AuditEntry, User
 from library.errors import OlibraError
 
@@ -37,8 +38,9 @@ class AccountError(OlibraError, ValueError):
 
 
 def bookkeeping_sessions(engine: Engine) -> sessionmaker[Session]:
-    """Sessions for accounts and jobs: same database, without the catalogue revision hook."""
-    return sessionmaker(bind=engine, expire_on_commit=False)
+    """Sessions for accounts and jobs: same database, without the catalogue revision hook; their
+    transactions are write transactions (BEGIN IMMEDIATE on SQLite, see database.writer_engine)."""
+    return sessionmaker(bind=writer_engine(engine), expire_on_commit=False)
 
 
 def check_username(username: str | None) -> str:

@@ -40,6 +40,7 @@ from pathlib import Path
 from typing import Callable, Iterable, Iterator
 
 from sqlalchemy import select
+from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, selectinload
 
 from library.catalogue.curation import (
@@ -51,6 +52,7 @@ from library.catalogue.curation import (
     format_strength,
     vocabulary,
 )
+from library.catalogue.database import CatalogueBusy, busy_message, is_busy
 from library.catalogue.models import Material, MaterialOdor
 from library.errors import OlibraError
 from library.structures import StructureError
@@ -384,19 +386,23 @@ def _check_inchikey(row: InputRow, structure_inchikey: str) -> None:
             "the structure or the key was changed by hand")
 
 
-def import_rows(session: Session, rows: Iterable[InputRow], *, keep_good: bool = False,
-                actor: str | None = None, max_heavy_atoms: int | None = None,
-                default_structure_source: str | None = None,
-                canonical_tautomer: bool = False,
-                progress: Callable[[int], None] | None = None) -> ImportReport:
-    """Import rows inside the caller's transaction; the caller commits only if `report.committed`.
+@dataclass
+class StagedRow:
+    """One input row checked and standardized, ready to store (or refused, or a repeat within the file)."""
 
-    Rows without a structure_source take `default_structure_source` (e.g. 'from
-    memory') when given; otherwise they are rejected. Each row is stored inside a savepoint so a row that fails at the database
-    (a unique constraint, say) is rolled back alone.
-    """
-    report = ImportReport()
-    terms = vocabulary(session)
+    row: int
+    name: str
+    draft: object | None = None  # MaterialDraft
+    rejection: str | None = None
+    repeat_of: int | None = None
+
+
+def stage_rows(rows: Iterable[InputRow], *, max_heavy_atoms: int | None = None,
+               default_structure_source: str | None = None, canonical_tautomer: bool = False,
+               progress: Callable[[int], None] | None = None) -> list[StagedRow]:
+    """Check and standardize every row without touching the catalogue (the slow part of an import), so
+    that the write transaction that follows is short."""
+    staged: list[StagedRow] = []
     seen_in_file: dict[str, int] = {}
     for row in rows:
         name = row.fields.get("name", "")
@@ -419,20 +425,57 @@ def import_rows(session: Session, rows: Iterable[InputRow], *, keep_good: bool =
             draft.restricted = _yes_no(row.fields.get("restricted", ""), "restricted")
             key = draft.structure.inchikey
             if key in seen_in_file:
-                report.rows.append(RowOutcome(row.row, name, "present",
-                                              f"same structure as row {seen_in_file[key]} of this file"))
-                continue
-            seen_in_file[key] = row.row
-            with session.begin_nested():
-                outcome = add_material(session, draft, actor=actor, known_terms=terms)
-            report.rows.append(RowOutcome(row.row, name, "added" if outcome.added else "present",
-                                          outcome.message, outcome.material.id))
+                staged.append(StagedRow(row.row, name, repeat_of=seen_in_file[key]))
+            else:
+                seen_in_file[key] = row.row
+                staged.append(StagedRow(row.row, name, draft=draft))
         except (StructureError, CurationError) as exc:
-            report.rows.append(RowOutcome(row.row, name, "rejected", str(exc)))
+            staged.append(StagedRow(row.row, name, rejection=str(exc)))
         if progress:
             progress(1)
+    return staged
+
+
+def store_staged(session: Session, staged: list[StagedRow], *, keep_good: bool = False,
+                 actor: str | None = None) -> ImportReport:
+    """Store staged rows inside the caller's (write) transaction; the caller commits only if
+    `report.committed`. Each row goes in a savepoint, so a row refused by the catalogue (a name or
+    CAS RN already used) is rolled back alone."""
+    report = ImportReport()
+    terms = vocabulary(session)
+    for item in staged:
+        if item.rejection is not None:
+            report.rows.append(RowOutcome(item.row, item.name, "rejected", item.rejection))
+            continue
+        if item.repeat_of is not None:
+            report.rows.append(RowOutcome(item.row, item.name, "present",
+                                          f"same structure as row {item.repeat_of} of this file"))
+            continue
+        try:
+            with session.begin_nested():
+                outcome = add_material(session, item.draft, actor=actor, known_terms=terms)
+            report.rows.append(RowOutcome(item.row, item.name, "added" if outcome.added else "present",
+                                          outcome.message, outcome.material.id))
+        except (StructureError, CurationError) as exc:
+            report.rows.append(RowOutcome(item.row, item.name, "rejected", str(exc)))
     report.committed = keep_good or not report.rejected
     return report
+
+
+def import_rows(session: Session, rows: Iterable[InputRow], *, keep_good: bool = False,
+                actor: str | None = None, max_heavy_atoms: int | None = None,
+                default_structure_source: str | None = None,
+                canonical_tautomer: bool = False,
+                progress: Callable[[int], None] | None = None) -> ImportReport:
+    """Import rows inside the caller's transaction; the caller commits only if `report.committed`.
+
+    Rows without a structure_source take `default_structure_source` (e.g. 'from
+    memory') when given; otherwise they are rejected. (`import_into` stages the rows
+    before it opens its transaction; this does both inside the caller's.)
+    """
+    staged = stage_rows(rows, max_heavy_atoms=max_heavy_atoms, default_structure_source=default_structure_source,
+                        canonical_tautomer=canonical_tautomer, progress=progress)
+    return store_staged(session, staged, keep_good=keep_good, actor=actor)
 
 
 def _odor_sources(text: str) -> dict[str, str]:
@@ -457,14 +500,30 @@ def _yes_no(text: str, column: str) -> bool:
     raise CurationError(f"{column} {text[:20]!r} must be yes or no")
 
 
-def import_into(catalogue, rows: Iterable[InputRow], **options) -> ImportReport:
-    """Run `import_rows` in one transaction of `catalogue`, rolled back unless the report is committed."""
-    with catalogue.sessions() as session:
-        with session.begin() as outer:
-            report = import_rows(session, rows, **options)
-            if not report.committed:
-                outer.rollback()
-    return report
+WRITE_ATTEMPTS = 3
+
+
+def import_into(catalogue, rows: Iterable[InputRow], *, keep_good: bool = False, actor: str | None = None,
+                progress: Callable[[int], None] | None = None, **options) -> ImportReport:
+    """Import all-or-nothing into `catalogue`: rows are checked and standardized first, outside any
+    transaction; then one short write transaction stores them (rolled back unless the report is
+    committed). When another writer holds the catalogue past the busy timeout, the write is tried
+    again (WRITE_ATTEMPTS in all) before a clear CatalogueBusy error."""
+    staged = stage_rows(rows, progress=progress, **options)
+    for attempt in range(1, WRITE_ATTEMPTS + 1):
+        try:
+            with catalogue.writer_sessions() as session:
+                with session.begin() as outer:
+                    report = store_staged(session, staged, keep_good=keep_good, actor=actor)
+                    if not report.committed:
+                        outer.rollback()
+            return report
+        except OperationalError as exc:
+            if not is_busy(exc):
+                raise
+            if attempt == WRITE_ATTEMPTS:
+                raise CatalogueBusy(busy_message() + f" ({WRITE_ATTEMPTS} attempts)") from None
+    raise AssertionError("unreachable")
 
 
 def _materials(session: Session, *, include_retired: bool = True) -> list[Material]:

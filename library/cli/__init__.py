@@ -62,7 +62,12 @@ def main(argv: list[str] | None = None) -> int:
         print("olibra: interrupted; nothing half-written was kept", file=sys.stderr)
         return EXIT_INTERRUPTED
     except OperationalError as exc:
-        print(f"olibra: error: database problem: {str(exc.orig).strip().splitlines()[0]}", file=sys.stderr)
+        from library.catalogue.database import busy_message, is_busy
+
+        if is_busy(exc):
+            print(f"olibra: error: {busy_message()}", file=sys.stderr)
+        else:
+            print(f"olibra: error: database problem: {str(exc.orig).strip().splitlines()[0]}", file=sys.stderr)
         return EXIT_USER_ERROR
     except (BrokenPipeError, SQLAlchemyError, Exception) as exc:  # noqa: B014 - last-resort guard
         if isinstance(exc, BrokenPipeError):
