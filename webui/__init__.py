@@ -159,6 +159,9 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         OLIBRA_IDLE_MINUTES=float(os.environ.get("OLIBRA_IDLE_MINUTES") or 60),
         OLIBRA_SIGN_IN_FREE_ATTEMPTS=5,  # failed sign-ins per account and address before the back-off starts
         OLIBRA_SIGN_IN_MAX_DELAY_S=900,  # longest back-off
+        OLIBRA_HEAVY_WORKERS=None,  # heavy searches running at once (default: cores - 1, at least 1)
+        OLIBRA_HEAVY_QUEUE=3,  # heavy searches waiting for a place; more get 503 at once
+        OLIBRA_REQUEST_TIME_LIMIT_S=60,  # longest a request waits for a heavy result
     )
     if config:
         app.config.update(config)
@@ -174,6 +177,11 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
                                         vibration_engine=app.config["OLIBRA_VIBRATION_ENGINE"],
                                         index_cache_dir=app.config["OLIBRA_INDEX_CACHE_DIR"])
     csrf.init_app(app)
+    from webui.heavy import HeavyPool
+
+    app.extensions["olibra_heavy"] = HeavyPool(workers=app.config["OLIBRA_HEAVY_WORKERS"],
+                                               queue=int(app.config["OLIBRA_HEAVY_QUEUE"]),
+                                               time_limit_s=float(app.config["OLIBRA_REQUEST_TIME_LIMIT_S"]))
 
     @app.teardown_appcontext
     def close_session(_exc) -> None:

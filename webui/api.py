@@ -66,7 +66,7 @@ def json_body(fields: dict[str, tuple] | None = None) -> dict:
     if fields is not None:
         unknown = sorted(set(data) - set(fields))
         if unknown:
-            abort(400, description=f"unknown field(s) {', '.join(repr(k[:40]) for k in unknown[:5])}; "
+            abort(400, description=f"unknown field(s) {', '.join(k[:40] for k in unknown[:5])}; "
                                    f"allowed: {', '.join(sorted(fields))}")
         for name, allowed in fields.items():
             if name not in data:

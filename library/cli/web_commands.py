@@ -198,7 +198,9 @@ def register(commands) -> None:
     p.add_argument("--host", default=DEFAULT_HOST,
                    help=f"address to listen on (default {DEFAULT_HOST}: this machine only)")
     p.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"port (default {DEFAULT_PORT})")
-    p.add_argument("--threads", type=int, default=4, help="request threads (default 4)")
+    p.add_argument("--threads", type=int, default=8,
+                   help="request threads (default 8; keep it above the heavy-search workers plus their queue, "
+                        "so that cheap pages are answered while heavy searches run)")
     p.add_argument("--processes", type=int, default=None,
                    help="worker processes for recompute jobs (default: one per core)")
     p.set_defaults(handler=cmd_serve)
