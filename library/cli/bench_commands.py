@@ -56,8 +56,16 @@ def cmd_bench_web(args) -> int:
     return 0
 
 
+def cmd_bench_load(args) -> int:
+    from benchmarks import web_load
+
+    _header("load", None)
+    web_load.run(args.db, sign_in_seconds=args.sign_in_seconds)
+    return 0
+
+
 BENCHES = {"shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
-           "web": cmd_bench_web}
+           "web": cmd_bench_web, "load": cmd_bench_load}
 
 
 def cmd_bench(args) -> int:
@@ -65,11 +73,13 @@ def cmd_bench(args) -> int:
 
 
 def register(commands) -> None:
-    p = commands.add_parser("bench", help="print performance figures (shape, vibration, search, web)")
+    p = commands.add_parser("bench", help="print performance figures (shape, vibration, search, web, load)")
     p.add_argument("what", choices=sorted(BENCHES))
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
     p.add_argument("--sizes", type=int, nargs="+", help="search: synthetic catalogue sizes (default 10k 100k 1M)")
     p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
     p.add_argument("--skip-catalogue", action="store_true",
                    help="search: skip the recall figure on the real catalogue (--db, with computed records)")
+    p.add_argument("--sign-in-seconds", type=float, default=60.0,
+                   help="load: length of the wrong-password burst against the sign-in throttle (0 skips it)")
     p.set_defaults(handler=cmd_bench)
