@@ -24,6 +24,12 @@ DEFAULT_MAX_HEAVY_ATOMS = 60
 # Elements a material may contain: the organic set that odorants and flavor
 # materials are made of, plus the halogens, boron, silicon and selenium.
 SUPPORTED_ELEMENTS = frozenset("H B C N O F Si P S Cl Se Br I".split())
+# Simple cations of salts of organic acids (monosodium glutamate, potassium sorbate): stripped when they
+# stand alone as ions. Every other metal, and these when bonded, means a metal complex or an
+# organometallic, which is refused: a metal atom is never a counterion to strip.
+COUNTERION_METALS = frozenset("Li Na K Mg Ca".split())
+# Elements RDKit counts as metals (for the message); anything else outside SUPPORTED_ELEMENTS is simply unsupported.
+NONMETALS = frozenset("H He B C N O F Ne Si P S Cl Ar Ge As Se Br Kr Sb Te I Xe At Rn".split())
 INPUT_FORMATS = ("smiles", "molfile", "inchi")
 MAX_INPUT_CHARS = 200_000
 
@@ -151,8 +157,23 @@ def _check_chemistry(mol: Chem.Mol) -> None:
     Chem.SanitizeMol(mol)
 
 
+def _check_metals(mol: Chem.Mol, supported_elements: frozenset[str]) -> None:
+    """Refuse metal complexes and organometallics before any fragment is stripped."""
+    for atom in mol.GetAtoms():
+        symbol = atom.GetSymbol()
+        if atom.GetAtomicNum() == 0 or symbol in supported_elements or symbol in NONMETALS:
+            continue
+        if symbol in COUNTERION_METALS and atom.GetDegree() == 0:
+            continue  # a lone Na+, K+ ... of a salt
+        kind = "bonded to other atoms (an organometallic or metal complex)" if atom.GetDegree() else \
+            "a metal that olibra does not strip as a counterion (a metal complex or metal salt)"
+        raise StructureError(
+            f"structure contains {symbol}, {kind}; olibra holds organic odorants and small neutral "
+            "inorganic ones, and strips only lone Li, Na, K, Mg or Ca ions of salts")
+
+
 def _choose_fragment(mol: Chem.Mol) -> tuple[Chem.Mol, list[str]]:
-    """Strip counterions and solvents; refuse true mixtures of organic components."""
+    """Strip counterions and solvents; refuse true mixtures of organic components and inorganic salts."""
     fragments = Chem.GetMolFrags(mol, asMols=True, sanitizeFrags=False)
     if len(fragments) == 1:
         return mol, []
@@ -167,9 +188,18 @@ def _choose_fragment(mol: Chem.Mol) -> tuple[Chem.Mol, list[str]]:
             raise StructureError(
                 f"structure is a mixture of {len(organic)} organic components; "
                 "add each component as its own material")
+    whole = Chem.MolToSmiles(mol)
+    if not organic:
+        raise StructureError(
+            f"structure {_shorten(whole)} is a salt or mixture of inorganic ions; stripping its counterions "
+            "would store a different compound; give the neutral substance itself (e.g. N for ammonia)")
     chooser = rdMolStandardize.LargestFragmentChooser(preferOrganic=True)
     chosen = chooser.choose(mol)
-    return chosen, [f"removed {len(fragments) - 1} counterion or solvent fragment(s)"]
+    kept = Chem.MolToSmiles(chosen)
+    removed = [Chem.MolToSmiles(f) for f in fragments]
+    if kept in removed:
+        removed.remove(kept)
+    return chosen, [f"removed {len(removed)} counterion or solvent fragment(s): {', '.join(removed)}"]
 
 
 def standardize(text: str | Chem.Mol, *, input_format: str | None = None,
@@ -203,8 +233,14 @@ def standardize(text: str | Chem.Mol, *, input_format: str | None = None,
     if mol.GetNumAtoms() == 0:
         raise StructureError("structure has no atoms; give a non-empty structure")
 
+    if mol.GetNumHeavyAtoms() == 0:
+        raise StructureError(
+            f"structure {_shorten(Chem.MolToSmiles(mol))} has no heavy atom (only hydrogen); "
+            "give an odorant with at least one atom other than hydrogen")
+
     with _captured_rdkit_messages():
         _check_chemistry(mol)
+        _check_metals(mol, supported_elements)
         mol, fragment_notes = _choose_fragment(mol)
         notes += fragment_notes
         unsupported = sorted({a.GetSymbol() for a in mol.GetAtoms()} - supported_elements)
@@ -213,9 +249,14 @@ def standardize(text: str | Chem.Mol, *, input_format: str | None = None,
                 f"element(s) {', '.join(unsupported)} not supported; olibra accepts "
                 f"{' '.join(sorted(supported_elements))}")
         charged_before = Chem.GetFormalCharge(mol) != 0 or any(a.GetFormalCharge() for a in mol.GetAtoms())
+        before = Chem.MolToSmiles(mol)
         mol = rdMolStandardize.Uncharger().uncharge(mol)
+        if charged_before and not any(a.GetSymbol() == "C" for a in mol.GetAtoms()):
+            raise StructureError(
+                f"structure {_shorten(before)} is a charged inorganic species; neutralizing it would store "
+                f"{_shorten(Chem.MolToSmiles(mol))}, a different compound; give the neutral substance itself")
         if charged_before and not any(a.GetFormalCharge() for a in mol.GetAtoms()):
-            notes.append("neutralized charges")
+            notes.append(f"neutralized charges ({before} became {Chem.MolToSmiles(mol)})")
         mol = rdMolStandardize.Normalizer().normalize(mol)
         if canonical_tautomer:
             before = Chem.MolToSmiles(mol)
@@ -269,7 +310,7 @@ def standardize(text: str | Chem.Mol, *, input_format: str | None = None,
     )
 
 
-_CAS_PATTERN = re.compile(r"^(\d{2,7})-(\d{2})-(\d)$")
+_CAS_PATTERN = re.compile(r"^([0-9]{2,7})-([0-9]{2})-([0-9])$")
 
 
 def cas_check_digit(digits: str) -> int:
@@ -286,6 +327,10 @@ def check_cas(text: str) -> str:
     if not isinstance(text, str):
         raise StructureError(f"CAS RN must be text, not {type(text).__name__}")
     candidate = text.strip()
+    if not candidate.isascii():
+        raise StructureError(
+            f"CAS RN {_shorten(candidate)!r} contains characters other than ASCII digits and hyphens; "
+            "type it with the digits 0-9 (e.g. 106-22-9)")
     match = _CAS_PATTERN.match(candidate)
     if not match:
         raise StructureError(

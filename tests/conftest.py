@@ -13,14 +13,19 @@ hold the accounts of web_helpers.add_web_accounts. CSRF tokens and signing in: w
 
 from __future__ import annotations
 
+import io
+import shutil
+import sys
+from pathlib import Path
+
 import pytest
 
 from library.catalogue import curation
-from library.catalogue.database import initialize
+from library.catalogue.database import Catalogue, initialize
 from webui import create_app
 
 from catalogue_helpers import TEST_VOCABULARY, fresh_postgres_url
-from web_helpers import CURATOR, READER, signed_in_client
+from web_helpers import CURATOR, READER, computed_catalogue_template, load_web_catalogue, signed_in_client
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
@@ -75,3 +80,51 @@ def reader(app):
 def curator(app):
     """A test client signed in as the curator; its CSRF token in `.token`."""
     return signed_in_client(app, CURATOR)
+
+
+@pytest.fixture(scope="session")
+def web_template_file(tmp_path_factory) -> Path:
+    """The web test catalogue (web_helpers.SEED_NAMES and the accounts) as a SQLite file, built once per
+    session and copied for each test."""
+    path = tmp_path_factory.mktemp("web-template") / "catalogue.sqlite"
+    load_web_catalogue(f"sqlite:///{path}").dispose()
+    return path
+
+
+@pytest.fixture(scope="session")
+def computed_template(tmp_path_factory) -> Path:
+    """The computed search catalogue of web_helpers.SEARCH_SEED_NAMES (current records), built once."""
+    return computed_catalogue_template(tmp_path_factory)
+
+
+@pytest.fixture
+def backend(request) -> str:
+    """'sqlite' unless a test is parametrized over web_helpers.BACKENDS (indirect)."""
+    return getattr(request, "param", "sqlite")
+
+
+@pytest.fixture
+def web_catalogue(backend, tmp_path, web_template_file):
+    """A fresh copy of the web test catalogue on `backend`; a module uses it as its `catalogue`."""
+    if backend == "sqlite":
+        target = tmp_path / "catalogue.sqlite"
+        shutil.copyfile(web_template_file, target)
+        opened = Catalogue(f"sqlite:///{target}")
+    else:
+        opened = load_web_catalogue(fresh_postgres_url())
+    yield opened
+    opened.dispose()
+
+
+@pytest.fixture
+def runner(catalogue, monkeypatch, capsys):
+    """Runs `olibra ...` on the test catalogue: (exit code, out, err)."""
+    from library import cli
+
+    def run(*argv, stdin: str | None = None):
+        if stdin is not None:
+            monkeypatch.setattr(sys, "stdin", io.StringIO(stdin))
+        code = cli.main(["--db", catalogue.url, *argv])
+        captured = capsys.readouterr()
+        return code, captured.out, captured.err
+    return run

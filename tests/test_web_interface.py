@@ -10,31 +10,33 @@ from __future__ import annotations
 import html
 import io
 import json
-import os
 import re
-import shutil
 import subprocess
 import sys
 import time
-from html.parser import HTMLParser
-from pathlib import Path
 
 import pytest
 from rdkit import Chem
 from sqlalchemy import func, select
 
 from library import computations
-from library.catalogue import accounts, curation, records, transfer
-from library.catalogue.database import Catalogue, initialize
+from library.catalogue import accounts, curation, records
 from library.catalogue.models import AuditEntry, BackgroundJob, Material, PairFlag, User
 from webui import SecretKeyMissing, create_app
 from webui.background import mark_abandoned
 
-from catalogue_helpers import fresh_postgres_url, seed_rows
-from web_helpers import PASSWORD, add_web_accounts, csrf_token, sign_in, write_requests
+from web_helpers import (
+    PASSWORD,
+    SEED_NAMES,
+    csrf_token,
+    edit_form,
+    material_count,
+    material_id,
+    on_both_backends,
+    sign_in,
+    write_requests,
+)
 
-SEED_NAMES = ("(R)-(+)-Limonene", "(S)-(-)-Limonene", "Citral", "Geranial", "Neral", "Octanal",
-              "Linalool", "Eugenol")
 # Real aroma materials from library/seed_catalog/materials.csv that the fixture leaves out, for adding.
 VANILLIN = "COc1cc(C=O)ccc1O"
 COUMARIN = "O=c1ccc2ccccc2o1"
@@ -45,68 +47,10 @@ EXPECTED_WRITE_ENDPOINTS = {
 }
 
 
-def load_catalogue(url: str, names=SEED_NAMES):
-    catalogue = initialize(url)
-    with catalogue.transaction() as session:
-        curation.load_vocabulary(session)
-        report = transfer.import_rows(session, seed_rows(names), actor="seed")
-        assert report.committed and report.count("added") == len(names)
-    add_web_accounts(catalogue)
-    return catalogue
-
-
-@pytest.fixture(scope="session")
-def template_file(tmp_path_factory) -> Path:
-    """A loaded SQLite catalogue, built once and copied for each test (each test gets its own file)."""
-    path = tmp_path_factory.mktemp("web-template") / "catalogue.sqlite"
-    load_catalogue(f"sqlite:///{path}").dispose()
-    return path
-
-
 @pytest.fixture
-def backend(request) -> str:
-    """'sqlite' unless a test is parametrized over BACKENDS (indirect)."""
-    return getattr(request, "param", "sqlite")
-
-
-BACKENDS = ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
-on_both_backends = pytest.mark.parametrize("backend", BACKENDS, indirect=True)
-
-
-@pytest.fixture
-def catalogue(backend, tmp_path, template_file):
-    if backend == "sqlite":
-        target = tmp_path / "catalogue.sqlite"
-        shutil.copyfile(template_file, target)
-        opened = Catalogue(f"sqlite:///{target}")
-    else:
-        opened = load_catalogue(fresh_postgres_url())
-    yield opened
-    opened.dispose()
-
-
-@pytest.fixture
-def runner(catalogue, monkeypatch, capsys):
-    """Runs `olibra ...` on the test catalogue: (exit code, out, err)."""
-    from library import cli
-
-    def run(*argv, stdin: str | None = None):
-        if stdin is not None:
-            monkeypatch.setattr(sys, "stdin", io.StringIO(stdin))
-        code = cli.main(["--db", catalogue.url, *argv])
-        captured = capsys.readouterr()
-        return code, captured.out, captured.err
-    return run
-
-
-def material_count(catalogue) -> int:
-    with catalogue.reading() as session:
-        return session.scalar(select(func.count()).select_from(Material))
-
-
-def material_id(catalogue, name: str) -> int:
-    with catalogue.reading() as session:
-        return session.scalar(select(Material.id).where(Material.preferred_name == name))
+def catalogue(web_catalogue):
+    """A copy of the web test catalogue (SEED_NAMES of the seed catalogue and the two accounts)."""
+    return web_catalogue
 
 
 # --- who may do what -------------------------------------------------------------------------------
@@ -316,51 +260,6 @@ def test_names_are_escaped(client):
     response = client.post("/materials/new", data=add_form(token, name="<script>alert(1)</script> vanillin"))
     page = client.get(response.headers["Location"]).text
     assert "&lt;script&gt;alert(1)&lt;/script&gt; vanillin" in page and "<script>alert(1)" not in page
-
-
-class FormValues(HTMLParser):
-    """The values a browser would submit from a page's form (inputs, textareas, selected options)."""
-
-    def __init__(self):
-        super().__init__()
-        self.values: dict[str, str] = {}
-        self._textarea: str | None = None
-        self._select: str | None = None
-
-    def handle_starttag(self, tag, attrs):
-        attrs = dict(attrs)
-        if tag == "input" and attrs.get("name"):
-            if attrs.get("type") == "checkbox":
-                if "checked" in attrs:
-                    self.values[attrs["name"]] = attrs.get("value", "y")
-            else:
-                self.values[attrs["name"]] = attrs.get("value", "")
-        elif tag == "textarea":
-            self._textarea = attrs["name"]
-            self.values[self._textarea] = ""
-        elif tag == "select":
-            self._select = attrs["name"]
-        elif tag == "option" and self._select and "selected" in attrs:
-            self.values[self._select] = attrs["value"]
-
-    def handle_endtag(self, tag):
-        if tag == "textarea":
-            self._textarea = None
-        elif tag == "select":
-            self._select = None
-
-    def handle_data(self, data):
-        if self._textarea:
-            self.values[self._textarea] += data
-
-
-def edit_form(client, material) -> dict:
-    parser = FormValues()
-    parser.feed(client.get(f"/materials/{material}/edit").text)
-    values = parser.values
-    values["synonyms"] = values["synonyms"].lstrip("\n")
-    values.pop("csrf-token", None)
-    return values
 
 
 @on_both_backends

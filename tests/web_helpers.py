@@ -4,11 +4,16 @@ the computed search catalogue. Imported by name; the fixtures built on them are 
 from __future__ import annotations
 
 import re
+from html.parser import HTMLParser
 from pathlib import Path
+
+import pytest
+from sqlalchemy import func, select
 
 from library import computations
 from library.catalogue import accounts, curation, jobs, transfer
 from library.catalogue.database import initialize
+from library.catalogue.models import Material
 from webui.auth import SESSION_ENDPOINTS, WRITE_METHODS
 
 from catalogue_helpers import seed_rows
@@ -85,3 +90,75 @@ def computed_catalogue_template(tmp_path_factory) -> Path:
         catalogue.dispose()
     building.rename(path)
     return path
+
+
+# The web test catalogue: real seed materials, the two accounts (a copy per test; PostgreSQL loads its own).
+SEED_NAMES = ("(R)-(+)-Limonene", "(S)-(-)-Limonene", "Citral", "Geranial", "Neral", "Octanal",
+              "Linalool", "Eugenol")
+BACKENDS = ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
+on_both_backends = pytest.mark.parametrize("backend", BACKENDS, indirect=True)
+
+
+def load_web_catalogue(url: str, names=SEED_NAMES):
+    catalogue = initialize(url)
+    with catalogue.transaction() as session:
+        curation.load_vocabulary(session)
+        report = transfer.import_rows(session, seed_rows(names), actor="seed")
+        assert report.committed and report.count("added") == len(names)
+    add_web_accounts(catalogue)
+    return catalogue
+
+
+def material_count(catalogue) -> int:
+    with catalogue.reading() as session:
+        return session.scalar(select(func.count()).select_from(Material))
+
+
+def material_id(catalogue, name: str) -> int:
+    with catalogue.reading() as session:
+        return session.scalar(select(Material.id).where(Material.preferred_name == name))
+
+
+class FormValues(HTMLParser):
+    """The values a browser would submit from a page's form (inputs, textareas, selected options)."""
+
+    def __init__(self):
+        super().__init__()
+        self.values: dict[str, str] = {}
+        self._textarea: str | None = None
+        self._select: str | None = None
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag == "input" and attrs.get("name"):
+            if attrs.get("type") == "checkbox":
+                if "checked" in attrs:
+                    self.values[attrs["name"]] = attrs.get("value", "y")
+            else:
+                self.values[attrs["name"]] = attrs.get("value", "")
+        elif tag == "textarea":
+            self._textarea = attrs["name"]
+            self.values[self._textarea] = ""
+        elif tag == "select":
+            self._select = attrs["name"]
+        elif tag == "option" and self._select and "selected" in attrs:
+            self.values[self._select] = attrs["value"]
+
+    def handle_endtag(self, tag):
+        if tag == "textarea":
+            self._textarea = None
+        elif tag == "select":
+            self._select = None
+
+    def handle_data(self, data):
+        if self._textarea:
+            self.values[self._textarea] += data
+
+
+def edit_form(client, material) -> dict:
+    parser = FormValues()
+    parser.feed(client.get(f"/materials/{material}/edit").text)
+    values = parser.values
+    values["synonyms"] = values["synonyms"].lstrip("\n")
+    values.pop("csrf-token", None)
+    return values

@@ -14,6 +14,7 @@ signed-in reader or curator. See README.md, "Web interface and JSON API".
 
 from __future__ import annotations
 
+import datetime as dt
 import os
 import threading
 from collections import OrderedDict
@@ -25,7 +26,7 @@ from flask_wtf.csrf import CSRFProtect
 from sqlalchemy.orm import Session, sessionmaker
 
 from library.catalogue.accounts import bookkeeping_sessions
-from library.catalogue.database import Catalogue, resolve_url
+from library.catalogue.database import WRITE_OPTION, Catalogue, resolve_url
 from library.errors import OlibraError
 
 SECRET_KEY_VARIABLE = "OLIBRA_SECRET_KEY"
@@ -153,9 +154,18 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         OLIBRA_JOB_PROCESSES=None,  # worker processes for a recompute (default: one per core)
         OLIBRA_VIBRATION_ENGINE="mmff",  # vibration records the search pages use
         OLIBRA_INDEX_CACHE_DIR=None,  # folder of the on-disk index cache (default: the user cache folder)
+        # A session ends this long after signing in, or after this long unused.
+        OLIBRA_SESSION_HOURS=float(os.environ.get("OLIBRA_SESSION_HOURS") or 8),
+        OLIBRA_IDLE_MINUTES=float(os.environ.get("OLIBRA_IDLE_MINUTES") or 60),
+        OLIBRA_SIGN_IN_FREE_ATTEMPTS=5,  # failed sign-ins per account and address before the back-off starts
+        OLIBRA_SIGN_IN_MAX_DELAY_S=900,  # longest back-off
+        OLIBRA_HEAVY_WORKERS=None,  # heavy searches running at once (default: cores - 1, at least 1)
+        OLIBRA_HEAVY_QUEUE=3,  # heavy searches waiting for a place; more get 503 at once
+        OLIBRA_REQUEST_TIME_LIMIT_S=60,  # longest a request waits for a heavy result
     )
     if config:
         app.config.update(config)
+    app.config["PERMANENT_SESSION_LIFETIME"] = dt.timedelta(hours=float(app.config["OLIBRA_SESSION_HOURS"]))
     if not app.config.get("SECRET_KEY"):
         if not app.testing:
             raise SecretKeyMissing(
@@ -167,6 +177,11 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
                                         vibration_engine=app.config["OLIBRA_VIBRATION_ENGINE"],
                                         index_cache_dir=app.config["OLIBRA_INDEX_CACHE_DIR"])
     csrf.init_app(app)
+    from webui.heavy import HeavyPool
+
+    app.extensions["olibra_heavy"] = HeavyPool(workers=app.config["OLIBRA_HEAVY_WORKERS"],
+                                               queue=int(app.config["OLIBRA_HEAVY_QUEUE"]),
+                                               time_limit_s=float(app.config["OLIBRA_REQUEST_TIME_LIMIT_S"]))
 
     @app.teardown_appcontext
     def close_session(_exc) -> None:
@@ -183,6 +198,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         return response
 
     from webui import (
+        accounts,
         api,
         auth,
         browse,
@@ -199,7 +215,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     auth.init_app(app)
     errors.init_app(app)
-    for module in (auth, browse, curation, jobs, substitutes, compare, disagreements, scorecard, api,
+    for module in (auth, accounts, browse, curation, jobs, substitutes, compare, disagreements, scorecard, api,
                    search_api, health):
         app.register_blueprint(module.blueprint)
     return app
@@ -221,10 +237,23 @@ def db_session() -> Session:
     return g.db_session
 
 
+def begin_write() -> Session:
+    """The request's session in a fresh write transaction (BEGIN IMMEDIATE on SQLite).
+
+    Whatever the request read so far (its user, the form's material) was read in a deferred
+    transaction; that one is ended first, so the write waits for other writers instead of failing
+    on a stale snapshot. Objects loaded before are reloaded on next use, inside the write."""
+    session = db_session()
+    if session.in_transaction():
+        session.rollback()
+    session.connection(execution_options={WRITE_OPTION: True})
+    return session
+
+
 @contextmanager
 def write_transaction() -> Iterator[Session]:
-    """The request's session as one unit of work: committed on success, rolled back on any error."""
-    session = db_session()
+    """The request's session as one write transaction: committed on success, rolled back on any error."""
+    session = begin_write()
     try:
         yield session
         session.commit()

@@ -7,30 +7,86 @@ PATCH or DELETE. Errors are {"error": {"status": N, "message": "..."}}.
 
 from __future__ import annotations
 
+import json
+import re
+
 from flask import Blueprint, abort, current_app, jsonify, request
-from flask_login import current_user, login_user, logout_user
+from flask_login import current_user
 from flask_wtf.csrf import generate_csrf
 from sqlalchemy import select
 from sqlalchemy.orm import selectinload
 
-from library.catalogue import accounts, curation
+from library.catalogue import curation
 from library.catalogue.models import BackgroundJob, Material, MaterialOdor
 from library.errors import OlibraError
 from webui import db_session, queries, web_state, write_transaction
-from webui.auth import SignedInUser
+from webui.auth import SignInThrottled, checked_sign_in, end_session, start_session
 from webui.curation import draft_from, run_import
 from webui.jobs import record_counts, start
 
 blueprint = Blueprint("api", __name__, url_prefix="/api")
 
-MATERIAL_FIELDS = {"structure", "name", "synonyms", "cas", "family", "odors", "notes", "source"}
+MAX_JSON_DEPTH = 8
+MAX_JSON_BYTES = 1024 * 1024
+_JSON_STRING = re.compile(rb'"(?:[^"\\]|\\.)*"')
+_JSON_BRACKET = re.compile(rb"[\[\]{}]")
+TEXT, OPTIONAL_TEXT = (str,), (str, type(None))
+MATERIAL_FIELDS = {"structure": TEXT, "name": TEXT, "synonyms": (list, str), "cas": OPTIONAL_TEXT,
+                   "family": OPTIONAL_TEXT, "odors": (list, str), "notes": OPTIONAL_TEXT, "source": OPTIONAL_TEXT}
+TYPE_NAMES = {str: "a string", type(None): "null", list: "a list of strings", int: "a whole number",
+              bool: "true or false"}
 
 
-def json_body() -> dict:
-    data = request.get_json(silent=True)
+def _json_depth(raw: bytes) -> int:
+    """How deeply arrays and objects nest in `raw` (strings skipped), without parsing it."""
+    depth = deepest = 0
+    for bracket in _JSON_BRACKET.findall(_JSON_STRING.sub(b'""', raw)):
+        depth += 1 if bracket in (b"[", b"{") else -1
+        deepest = max(deepest, depth)
+    return deepest
+
+
+def json_body(fields: dict[str, tuple] | None = None) -> dict:
+    """The request's JSON object, checked: size, nesting depth, and with `fields` (name -> allowed types)
+    no unknown field and each value of an allowed type. Any problem is a 400 naming it."""
+    if request.mimetype != "application/json":
+        abort(400, description="send a JSON object in the request body with Content-Type: application/json")
+    raw = request.get_data(cache=True)
+    if len(raw) > MAX_JSON_BYTES:
+        abort(400, description=f"the JSON body is {len(raw)} bytes; the limit is {MAX_JSON_BYTES} bytes")
+    if _json_depth(raw) > MAX_JSON_DEPTH:
+        abort(400, description=f"the JSON body nests arrays or objects more than {MAX_JSON_DEPTH} levels deep; "
+                               "send a flat object of the documented fields")
+    try:
+        data = json.loads(raw)
+    except (ValueError, RecursionError) as exc:
+        abort(400, description=f"the request body is not valid JSON ({str(exc)[:120]}); send a JSON object")
     if not isinstance(data, dict):
         abort(400, description="send a JSON object in the request body with Content-Type: application/json")
+    if fields is not None:
+        unknown = sorted(set(data) - set(fields))
+        if unknown:
+            abort(400, description=f"unknown field(s) {', '.join(k[:40] for k in unknown[:5])}; "
+                                   f"allowed: {', '.join(sorted(fields))}")
+        for name, allowed in fields.items():
+            if name not in data:
+                continue
+            value = data[name]
+            ok = any(type(value) is kind for kind in allowed)
+            if ok and isinstance(value, list):
+                ok = all(isinstance(item, str) for item in value)
+            if not ok:
+                wanted = " or ".join(TYPE_NAMES[kind] for kind in allowed)
+                abort(400, description=f"field '{name}' must be {wanted}, not {_json_type(value)}")
     return data
+
+
+def _json_type(value) -> str:
+    if isinstance(value, list):
+        return "a list with a non-string item" if all(not isinstance(v, (list, dict)) for v in value) \
+            and any(not isinstance(v, str) for v in value) else "a list"
+    return {dict: "an object", str: "a string", bool: "true or false", int: "a number", float: "a number",
+            type(None): "null"}.get(type(value), type(value).__name__)
 
 
 def _session_state():
@@ -46,17 +102,21 @@ def session_state():
 
 @blueprint.post("/session")
 def sign_in():
-    data = json_body()
-    user = accounts.authenticate(db_session(), str(data.get("username") or ""), str(data.get("password") or ""))
+    data = json_body({"username": TEXT, "password": TEXT})
+    try:
+        user = checked_sign_in(str(data.get("username") or ""), str(data.get("password") or ""))
+    except SignInThrottled as exc:
+        return (jsonify(error={"status": 429, "message": str(exc), "retry_after_s": exc.wait_s}), 429,
+                {"Retry-After": str(exc.wait_s)})
     if user is None:
         return jsonify(error={"status": 401, "message": "the user name or password is not right"}), 401
-    login_user(SignedInUser.of(user))
+    start_session(user)
     return jsonify(_session_state())
 
 
 @blueprint.delete("/session")
 def sign_out():
-    logout_user()
+    end_session()
     return jsonify(signed_in=False)
 
 
@@ -90,10 +150,7 @@ def material(material_id: int):
 
 @blueprint.post("/materials")
 def add_material():
-    data = json_body()
-    unknown = sorted(set(data) - MATERIAL_FIELDS)
-    if unknown:
-        raise OlibraError(f"unknown field(s) {', '.join(unknown)}; allowed: {', '.join(sorted(MATERIAL_FIELDS))}")
+    data = json_body(MATERIAL_FIELDS)
     for key in ("structure", "name"):
         if not isinstance(data.get(key), str) or not data[key].strip():
             raise OlibraError(f"'{key}' is required (a non-empty string)")
@@ -130,7 +187,7 @@ def vocabulary():
 
 @blueprint.post("/vocabulary")
 def add_term():
-    data = json_body()
+    data = json_body({"term": TEXT, "family": OPTIONAL_TEXT, "description": OPTIONAL_TEXT})
     term = data.get("term")
     if not isinstance(term, str) or not term.strip():
         raise OlibraError("'term' is required (a non-empty string)")
@@ -150,7 +207,7 @@ def jobs():
 
 @blueprint.post("/jobs/recompute")
 def recompute():
-    data = json_body()
+    data = json_body({"kinds": TEXT, "engine": TEXT})
     job_id = start(str(data.get("kinds", "all")), str(data.get("engine", "mmff")))
     with web_state().bookkeeping() as session:  # the request's own session predates the new row
         return jsonify(queries.job_json(session.get(BackgroundJob, job_id))), 202

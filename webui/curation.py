@@ -14,7 +14,7 @@ from library.catalogue import curation, transfer
 from library.catalogue.edits import MaterialChanges, apply_changes, odor_text
 from library.catalogue.models import Material, MaterialOdor
 from library.errors import OlibraError
-from webui import db_session, queries, write_transaction
+from webui import begin_write, db_session, queries, write_transaction
 from webui.errors import user_message
 from webui.forms import (
     EditMaterialForm,
@@ -90,6 +90,12 @@ def _material_for_edit(material_id: int) -> Material:
     return material
 
 
+class StaleEdit(OlibraError):
+    def __init__(self):
+        super().__init__("Someone changed this material after you opened the form. "
+                         "Open the edit page again to see the current values; nothing was saved.")
+
+
 def _stamp(material: Material) -> str:
     return material.updated_at.isoformat() if material.updated_at else ""
 
@@ -111,24 +117,25 @@ def edit_material(material_id: int):
         form.loaded_at.data = _stamp(material)
         return render_template("curation/edit.html", form=form, material=material)
     if form.validate():
-        if form.loaded_at.data != _stamp(material):
-            form.form_errors.append("Someone changed this material after you opened the form. "
-                                    "Open the edit page again to see the current values; nothing was saved.")
+        changes = MaterialChanges(
+            name=form.name.data, synonyms=split_lines(form.synonyms.data), cas=form.cas.data or "",
+            family=form.family.data or "", notes=form.notes.data or "", odors=form.odors.data or "",
+            odor_source=form.odor_source.data or "", source=form.source.data or "",
+            status=form.status.data, restricted=form.restricted.data)
+        try:
+            with write_transaction() as session:
+                # Read again inside the write (locked: FOR UPDATE on PostgreSQL, BEGIN IMMEDIATE on SQLite),
+                # so of two simultaneous edits the second sees the first one's change.
+                material = session.get(Material, material_id, with_for_update=True, populate_existing=True)
+                if material is None or form.loaded_at.data != _stamp(material):
+                    raise StaleEdit()
+                changed = apply_changes(session, material, changes, actor=current_user.username)
+        except OlibraError as exc:
+            form.form_errors.append(user_message(exc))
         else:
-            changes = MaterialChanges(
-                name=form.name.data, synonyms=split_lines(form.synonyms.data), cas=form.cas.data or "",
-                family=form.family.data or "", notes=form.notes.data or "", odors=form.odors.data or "",
-                odor_source=form.odor_source.data or "", source=form.source.data or "",
-                status=form.status.data, restricted=form.restricted.data)
-            try:
-                with write_transaction() as session:
-                    changed = apply_changes(session, material, changes, actor=current_user.username)
-            except OlibraError as exc:
-                form.form_errors.append(user_message(exc))
-            else:
-                flash(f"Saved: {', '.join(f.replace('_', ' ') for f in changed)}." if changed
-                      else "Nothing changed.", "success")
-                return redirect(url_for("browse.material", material_id=material_id))
+            flash(f"Saved: {', '.join(f.replace('_', ' ') for f in changed)}." if changed
+                  else "Nothing changed.", "success")
+            return redirect(url_for("browse.material", material_id=material_id))
         material = _material_for_edit(material_id)  # the values as stored, after the rollback
     return render_template("curation/edit.html", form=form, material=material), 400
 
@@ -142,10 +149,10 @@ def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source:
             f"{filename or 'the file'!r} is not a CSV, TSV or SDF file (its name should end in "
             f"{', '.join(IMPORT_SUFFIXES)}); export your data in one of these formats and upload it again")
     rows = transfer.read_rows(f"upload{suffix}", data=data)
-    session = db_session()
+    staged = transfer.stage_rows(rows, default_structure_source=structure_source or None)
+    session = begin_write()
     try:
-        report = transfer.import_rows(session, rows, keep_good=keep_good, actor=actor,
-                                      default_structure_source=structure_source or None)
+        report = transfer.store_staged(session, staged, keep_good=keep_good, actor=actor)
         if report.committed:
             session.commit()
         else:

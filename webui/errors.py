@@ -7,8 +7,9 @@ from flask_wtf.csrf import CSRFError
 from sqlalchemy.exc import OperationalError
 from werkzeug.exceptions import HTTPException, InternalServerError
 
-from library.catalogue.database import CatalogueError
+from library.catalogue.database import CatalogueBusy, CatalogueError, busy_message, is_busy
 from library.errors import OlibraError, Remedy
+from webui.heavy import ServerBusy
 
 TITLES = {
     400: "The request could not be used",
@@ -18,7 +19,7 @@ TITLES = {
     405: "Not allowed here",
     413: "Upload too large",
     500: "Something went wrong on our side",
-    503: "The catalogue is not available",
+    503: "The server is busy or the catalogue is not available",
 }
 ADVICE = {
     404: "Nothing lives at this address. Check the link, or go back to the catalogue.",
@@ -82,10 +83,27 @@ def init_app(app) -> None:
 
     @app.errorhandler(OperationalError)
     def database_problem(exc: OperationalError):
+        if is_busy(exc):
+            response, status = _answer(503, f"{busy_message()[0].upper()}{busy_message()[1:]}.", plain=True)
+            response = app.make_response((response, status))
+            response.headers["Retry-After"] = "5"
+            return response
         app.logger.exception("database problem")
         first_line = str(exc.orig).strip().splitlines()[0] if exc.orig else "no detail"
         return _answer(503, f"The catalogue database did not answer ({first_line}); nothing was changed. "
                             "Try again in a moment.", plain=True)
+
+    @app.errorhandler(ServerBusy)
+    def server_busy(exc: ServerBusy):
+        response = app.make_response(_answer(503, f"{str(exc)[0].upper()}{str(exc)[1:]}.", plain=False))
+        response.headers["Retry-After"] = str(exc.retry_after_s)
+        return response
+
+    @app.errorhandler(CatalogueBusy)
+    def catalogue_busy(exc: CatalogueBusy):
+        response = app.make_response(_answer(503, str(exc), plain=True))
+        response.headers["Retry-After"] = "5"
+        return response
 
     @app.errorhandler(OlibraError)
     def user_problem(exc: OlibraError):

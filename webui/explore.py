@@ -15,11 +15,13 @@ from dataclasses import dataclass, field
 from flask import Response
 
 from library.catalogue import curation
+from library.catalogue.transfer import spreadsheet_safe
 from library.errors import OlibraError
 from library.catalogue import observations
 from library.search import disagreement_policy, evidence, metrics, pairs, queries, spectra, substitutes
 from library.search.disagreements import DIRECTIONS
 from webui import search_index, web_state
+from webui.heavy import heavy
 
 MAX_KEY_CHARS = 200
 MAX_STRUCTURE_CHARS = 20_000
@@ -27,7 +29,8 @@ MAX_K = 100
 MAX_NEIGHBORS = 100
 DISAGREEMENTS_PER_PAGE = 25
 SCORECARD_DEFAULTS = {"permutations": 199, "resamples": 200, "k": 5}
-SCORECARD_LIMITS = {"permutations": 9999, "resamples": 10000, "k": 50}
+# Per request on the web (the CLI `olibra scorecard` has no such limit); above: 400 naming the limit.
+SCORECARD_LIMITS = {"permutations": 999, "resamples": 1000, "k": 50}
 DISAGREEMENT_SORTS = ("rank", "direction", "basis", "a", "b", "gap", "shape", "vibration", "structure", "observed",
                       "sides_with")
 
@@ -57,7 +60,9 @@ def number_argument(args, name: str, label: str, *, default: float | None = None
     if not math.isfinite(value):
         raise ArgumentError(f"{label} must be a finite number, not {text[:30]!r}")
     if (low is not None and value < low) or (high is not None and value > high):
-        raise ArgumentError(f"{label} {text[:30]} is outside the allowed {low:g} to {high:g}")
+        allowed = (f"{low:g} to {high:g}" if low is not None and high is not None
+                   else f"{low:g} or more" if low is not None else f"{high:g} or less")
+        raise ArgumentError(f"{label} {text[:30]} is outside the allowed {allowed}")
     return value
 
 
@@ -176,7 +181,14 @@ def resolve_query(text: str, cat_index):
 
 
 def find_substitutes(request: SubstituteRequest):
-    """(SearchOutcome, CatalogueIndex) for a checked request, from the in-memory index."""
+    """(SearchOutcome, CatalogueIndex) for a checked request, from the in-memory index; shape searches
+    (overlay re-ranking) run in the heavy pool."""
+    if request.metric == "shape":
+        return heavy("the shape search", lambda: _substitutes(request))
+    return _substitutes(request)
+
+
+def _substitutes(request: SubstituteRequest):
     cat_index, _ = search_index()
     filters = substitutes.build_filter(mw_range=request.mw_range, logp_range=request.logp_range,
                                        must_have=request.must_have, must_not_have=request.must_not_have,
@@ -229,8 +241,11 @@ def compare(args):
                              example=" from 0 to 1")
     if not a or not b:
         raise ArgumentError("give two materials to compare (name, synonym, CAS RN, InChIKey or id)")
-    cat_index, _ = search_index()
-    return pairs.compare(web_state().catalogue, a, b, weight=weight, cat_index=cat_index)
+
+    def work():
+        cat_index, _ = search_index()
+        return pairs.compare(web_state().catalogue, a, b, weight=weight, cat_index=cat_index)
+    return heavy("the comparison", work)
 
 
 def bands_json(bands) -> dict:
@@ -289,13 +304,16 @@ def disagreement_request(args) -> DisagreementRequest:
 
 def find_disagreements(request: DisagreementRequest):
     """(rows, observed label), memoized per catalogue revision and thresholds."""
-    def compute():
+    def work():
         cat_index, _ = search_index()
         return disagreement_policy.find_disagreement_rows(
             web_state().catalogue, k=request.k, min_shape=request.min_shape, max_vibration=request.max_vibration,
             min_vibration=request.min_vibration, max_shape=request.max_shape, direction=request.direction,
             observation=None if request.observation == "none" else request.observation,
             include_retired=request.include_retired, cat_index=cat_index)
+
+    def compute():
+        return heavy("the disagreement list", work, key=("disagreements", request, search_index()[1]))
     return web_state().index_cache.memo(("disagreements", request), compute)
 
 
@@ -357,19 +375,26 @@ def scorecard_request(args) -> ScorecardRequest:
     values = {}
     for name, label in (("permutations", "permutations"), ("resamples", "bootstrap resamples"),
                         ("k", "k of precision at k")):
-        values[name] = int(number_argument(args, name, label, default=SCORECARD_DEFAULTS[name], low=1,
-                                           high=SCORECARD_LIMITS[name], integer=True,
-                                           example=f" from 1 to {SCORECARD_LIMITS[name]}"))
+        value = int(number_argument(args, name, label, default=SCORECARD_DEFAULTS[name], low=1, integer=True,
+                                    example=f" from 1 to {SCORECARD_LIMITS[name]}"))
+        if value > SCORECARD_LIMITS[name]:
+            raise ArgumentError(f"{label} {value} is above this server's limit of {SCORECARD_LIMITS[name]} per "
+                                f"request; ask for at most {SCORECARD_LIMITS[name]}, or run `olibra scorecard` "
+                                "for more")
+        values[name] = value
     return ScorecardRequest(observation, **values)
 
 
 def run_scorecard(request: ScorecardRequest):
     """(list of MetricScore, observed label, notes), memoized per catalogue revision and arguments."""
-    def compute():
+    def work():
         cat_index, _ = search_index()
         return evidence.run_scorecard(web_state().catalogue, observation=request.observation, k=request.k,
                                      permutations=request.permutations, resamples=request.resamples,
                                      cat_index=cat_index)
+
+    def compute():
+        return heavy("the scorecard", work, key=("scorecard", request, search_index()[1]))
     return web_state().index_cache.memo(("scorecard", request), compute)
 
 
@@ -388,17 +413,6 @@ def _finite(value: float | None) -> float | None:
 # ---------------------------------------------------------------- CSV
 
 
-def _cell(value):
-    """A CSV cell; text that a spreadsheet would run as a formula is prefixed with an apostrophe."""
-    if isinstance(value, list):
-        value = "|".join(map(str, value))
-    if value is None:
-        return ""
-    if isinstance(value, str) and value[:1] in ("=", "+", "-", "@"):
-        return "'" + value
-    return value
-
-
 def csv_response(rows: list[dict], columns: list[str], filename: str, *, caution: str | None = None) -> Response:
     """A CSV download; lists are joined with '|'. With `caution`, a first line '# caution: ...'."""
     buffer = io.StringIO()
@@ -407,7 +421,7 @@ def csv_response(rows: list[dict], columns: list[str], filename: str, *, caution
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(columns)
     for row in rows:
-        writer.writerow([_cell(row.get(c)) for c in columns])
+        writer.writerow([spreadsheet_safe(row.get(c)) for c in columns])
     response = Response(buffer.getvalue(), mimetype="text/csv")
     response.headers["Content-Disposition"] = f'attachment; filename="{filename}"'
     return response

@@ -11,7 +11,7 @@ from flask import Blueprint, jsonify, request
 
 from library.search.substitutes import CAUTION
 from webui import db_session, explore, queries
-from webui.api import json_body
+from webui.api import OPTIONAL_TEXT, TEXT, json_body
 from webui.disagreements import store_flag
 
 blueprint = Blueprint("search_api", __name__, url_prefix="/api")
@@ -70,10 +70,7 @@ def scorecard():
 
 @blueprint.post("/flags")
 def add_flag():
-    data = json_body()
-    unknown = sorted(set(data) - {"a", "b", "kind", "note"})
-    if unknown:
-        raise explore.ArgumentError(f"unknown field(s) {', '.join(unknown)}; allowed: a, b, kind, note")
+    data = json_body({"a": (str, int), "b": (str, int), "kind": TEXT, "note": OPTIONAL_TEXT})
     for key in ("a", "b", "kind"):
         if not isinstance(data.get(key), (str, int)) or not str(data[key]).strip():
             raise explore.ArgumentError(f"'{key}' is required (a material key for a and b, a flag kind for kind)")

@@ -30,6 +30,8 @@ from library.structures import StandardStructure, check_cas, standardize
 
 CURATED_FIELDS = ("structure", "preferred_name", "synonyms", "cas_rn", "olfactive_family", "notes")
 MAX_NAME_CHARS = 200
+MAX_FAMILY_CHARS = 40
+MAX_NOTES_CHARS = 100_000
 
 
 class CurationError(OlibraError, ValueError):
@@ -56,6 +58,8 @@ class Source:
         text = (text or "").strip() or (default or "")
         if not text:
             return None
+        if any(ord(c) < 32 or ord(c) == 127 for c in text):
+            raise CurationError(f"provenance {text[:40]!r} contains control characters (a line break, tab or NUL)")
         kind, _, reference = text.partition(":")
         kind = kind.strip().lower()
         if kind not in PROVENANCE_KINDS:
@@ -102,11 +106,17 @@ def parse_odor_list(text: str | None) -> list[OdorAssignment]:
     return assignments
 
 
+def format_strength(strength: float) -> str:
+    """A strength as short as it can be written and still be read back as the same number."""
+    short = f"{strength:g}"
+    return short if float(short) == strength else repr(float(strength))
+
+
 def format_odor_list(odors: list[MaterialOdor]) -> str:
     parts = []
     for odor in sorted(odors, key=lambda o: o.descriptor.term):
         parts.append(odor.descriptor.term if odor.strength is None
-                     else f"{odor.descriptor.term}:{odor.strength:g}")
+                     else f"{odor.descriptor.term}:{format_strength(odor.strength)}")
     return "|".join(parts)
 
 
@@ -123,7 +133,9 @@ class MaterialDraft:
     odors: list[OdorAssignment] = field(default_factory=list)
     sources: dict[str, Source] = field(default_factory=dict)
     odor_source: Source | None = None
+    odor_sources: dict[str, Source] = field(default_factory=dict)  # per term, overriding odor_source
     status: str = "active"
+    restricted: bool = False
 
 
 def _clean_name(name: str | None, what: str) -> str:
@@ -132,9 +144,58 @@ def _clean_name(name: str | None, what: str) -> str:
         raise CurationError(f"{what} is empty; every material needs a name")
     if len(name) > MAX_NAME_CHARS:
         raise CurationError(f"{what} is {len(name)} characters long (limit {MAX_NAME_CHARS})")
-    if any(ord(c) < 32 for c in name):
-        raise CurationError(f"{what} {name[:40]!r} contains control characters")
+    if any(ord(c) < 32 or ord(c) == 127 for c in name):
+        raise CurationError(f"{what} {name[:40]!r} contains control characters (a line break, tab or NUL)")
+    if what == "synonym" and "|" in name:
+        raise CurationError(f"synonym {name[:40]!r} contains '|', which separates synonyms; "
+                            "give each synonym on its own")
     return name
+
+
+def clean_notes(notes: str | None) -> str | None:
+    """Notes as stored: line breaks normalized to '\\n', no other control characters, ends stripped."""
+    text = (notes or "").replace("\r\n", "\n").replace("\r", "\n").strip()
+    if len(text) > MAX_NOTES_CHARS:
+        raise CurationError(f"notes are {len(text)} characters long (limit {MAX_NOTES_CHARS})")
+    bad = next((c for c in text if (ord(c) < 32 and c not in "\n\t") or ord(c) == 127), None)
+    if bad is not None:
+        raise CurationError(f"notes contain the control character {bad!r} (a NUL byte or similar); "
+                            "remove it and try again")
+    return text or None
+
+
+def clean_family(family: str | None) -> str | None:
+    text = (family or "").strip().lower()
+    if len(text) > MAX_FAMILY_CHARS:
+        raise CurationError(f"olfactive family {text[:40]!r}... is {len(text)} characters long "
+                            f"(limit {MAX_FAMILY_CHARS})")
+    if any(ord(c) < 32 or ord(c) == 127 for c in text):
+        raise CurationError(f"olfactive family {text[:40]!r} contains control characters")
+    return text or None
+
+
+def name_clash(session: Session, names: list[str], *, exclude_id: int | None = None) -> str | None:
+    """A message if any of `names` (a preferred name and synonyms) is another material's name or synonym.
+
+    Compared without regard to case, as `find_material` looks names up."""
+    lowered = {n.lower(): n for n in names}
+    if not lowered:
+        return None
+    others = [] if exclude_id is None else [Material.id != exclude_id]
+    row = session.execute(select(Material.id, Material.preferred_name).where(
+        func.lower(Material.preferred_name).in_(list(lowered)), *others).limit(1)).first()
+    if row is not None:
+        name = lowered[row.preferred_name.lower()]
+        return (f"{name!r} is already the name of #{row.id}; a name or synonym must point to one material, "
+                "so choose another")
+    others = [] if exclude_id is None else [Synonym.material_id != exclude_id]
+    row = session.execute(select(Synonym.material_id, Synonym.name, Material.preferred_name).join(Material).where(
+        func.lower(Synonym.name).in_(list(lowered)), *others).limit(1)).first()
+    if row is not None:
+        name = lowered[row.name.lower()]
+        return (f"{name!r} is already a synonym of #{row.material_id} {row.preferred_name}; a name or synonym "
+                "must point to one material, so choose another")
+    return None
 
 
 def draft_material(structure_text: str, *, name: str, synonyms: list[str] | None = None,
@@ -142,7 +203,8 @@ def draft_material(structure_text: str, *, name: str, synonyms: list[str] | None
                    odors: str | list[OdorAssignment] | None = None,
                    sources: dict[str, str | None] | None = None,
                    input_format: str | None = None, canonical_tautomer: bool = False,
-                   max_heavy_atoms: int | None = None) -> MaterialDraft:
+                   max_heavy_atoms: int | None = None,
+                   odor_sources: dict[str, str | None] | None = None) -> MaterialDraft:
     """Check every field of a new material; raise StructureError or CurationError on the first problem.
 
     `sources` maps a field ('structure', 'cas_rn', 'odor', 'preferred_name', ...)
@@ -159,8 +221,8 @@ def draft_material(structure_text: str, *, name: str, synonyms: list[str] | None
         if synonym != draft.preferred_name and synonym not in draft.synonyms:
             draft.synonyms.append(synonym)
     draft.cas_rn = check_cas(cas) if cas and cas.strip() else None
-    draft.olfactive_family = (family or "").strip().lower() or None
-    draft.notes = (notes or "").strip() or None
+    draft.olfactive_family = clean_family(family)
+    draft.notes = clean_notes(notes)
     draft.odors = parse_odor_list(odors) if isinstance(odors, (str, type(None))) else list(odors)
     for key, text in (sources or {}).items():
         source = Source.parse(text)
@@ -170,7 +232,15 @@ def draft_material(structure_text: str, *, name: str, synonyms: list[str] | None
             draft.odor_source = source
         else:
             draft.sources[key] = source
-    if draft.odors and draft.odor_source is None:
+    terms = {o.term for o in draft.odors}
+    for term, text in (odor_sources or {}).items():
+        term = (term or "").strip().lower()
+        if term not in terms:
+            raise CurationError(f"a source is given for odor descriptor {term!r}, which the material does not have")
+        source = Source.parse(text)
+        if source is not None:
+            draft.odor_sources[term] = source
+    if any(o.term not in draft.odor_sources for o in draft.odors) and draft.odor_source is None:
         raise CurationError("odor descriptors need a source (e.g. 'from memory', 'measured: panel 2026-03')")
     if draft.cas_rn and "cas_rn" not in draft.sources:
         raise CurationError("a CAS RN needs a source (e.g. 'from memory' or 'literature: ...')")
@@ -203,11 +273,15 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
         return AddOutcome(existing, False,
                           f"already present as #{existing.id} {existing.preferred_name} "
                           f"(InChIKey {existing.inchikey})")
-    clash = session.scalar(select(Material).where(Material.preferred_name == draft.preferred_name))
+    clash = session.scalar(select(Material).where(
+        func.lower(Material.preferred_name) == draft.preferred_name.lower()))
     if clash is not None:
         raise CurationError(
             f"name {draft.preferred_name!r} is already used by #{clash.id} with a different structure "
             f"({clash.smiles}); choose another name")
+    message = name_clash(session, [draft.preferred_name, *draft.synonyms])
+    if message:
+        raise CurationError(message)
     if draft.cas_rn:
         clash = session.scalar(select(Material).where(Material.cas_rn == draft.cas_rn))
         if clash is not None:
@@ -229,15 +303,17 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
         average_mass_g_per_mol=s.average_mass, monoisotopic_mass_da=s.monoisotopic_mass,
         heavy_atom_count=s.heavy_atom_count, stereo_status=s.stereo_status,
         unassigned_stereo_count=s.unassigned_stereo_count,
-        olfactive_family=draft.olfactive_family, notes=draft.notes, status=draft.status, restricted=False,
+        olfactive_family=draft.olfactive_family, notes=draft.notes, status=draft.status,
+        restricted=bool(draft.restricted),
     )
     material.synonyms = [Synonym(name=n) for n in draft.synonyms]
     material.provenance = [Provenance(field=f, kind=src.kind, reference=src.reference)
                            for f, src in sorted(draft.sources.items())]
-    odor_source = draft.odor_source or Source("from memory")
-    material.odors = [MaterialOdor(descriptor=terms[o.term], strength=o.strength,
-                                   source_kind=odor_source.kind, source_reference=odor_source.reference)
-                      for o in draft.odors]
+    def odor_row(o: OdorAssignment) -> MaterialOdor:
+        source = draft.odor_sources.get(o.term) or draft.odor_source or Source("from memory")
+        return MaterialOdor(descriptor=terms[o.term], strength=o.strength,
+                            source_kind=source.kind, source_reference=source.reference)
+    material.odors = [odor_row(o) for o in draft.odors]
     session.add(material)
     session.flush()
     session.add(AuditEntry(actor=actor, action="create", entity="material", entity_id=material.id,

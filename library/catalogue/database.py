@@ -1,6 +1,8 @@
 """Where the catalogue lives and how to open it.
 
-SQLite is the embedded default (WAL journal, foreign keys on, a busy timeout);
+SQLite is the embedded default (WAL journal, foreign keys on, a busy timeout;
+write transactions start with BEGIN IMMEDIATE so that a writer waits for another
+to finish instead of failing when it upgrades a read to a write);
 any SQLAlchemy URL works, given by `--db URL` or the OLIBRA_DB environment
 variable. Alembic owns the schema: `upgrade` brings a database to the newest
 revision and `open_catalogue` refuses one that is not there yet.
@@ -30,12 +32,17 @@ from library.errors import OlibraError, Remedy
 ENVIRONMENT_VARIABLE = "OLIBRA_DB"
 DEFAULT_FILE_NAME = "catalogue.sqlite"
 SQLITE_BUSY_TIMEOUT_MS = 10_000
+WRITE_OPTION = "olibra_write"  # execution option: this connection's transactions write (BEGIN IMMEDIATE)
 # The Alembic environment and versions are package data (library/catalogue/migrations/).
 MIGRATIONS_DIR = Path(str(resources.files("library.catalogue") / "migrations"))
 
 
 class CatalogueError(OlibraError):
     """The catalogue cannot be opened or is not in the expected state."""
+
+
+class CatalogueBusy(OlibraError):
+    """Another writer held the catalogue longer than we could wait; nothing was changed."""
 
 
 def default_url(*, here: bool = False) -> str:
@@ -94,8 +101,34 @@ def make_engine(url: str, *, create_folder: bool = False) -> Engine:
                              "for PostgreSQL install olibra[postgres]") from None
     if engine.dialect.name == "sqlite":
         event.listen(engine, "connect", _set_sqlite_pragmas)
-        event.listen(engine, "begin", lambda connection: connection.exec_driver_sql("BEGIN"))
+        event.listen(engine, "begin", _begin_sqlite)
     return engine
+
+
+def _begin_sqlite(connection) -> None:
+    # A writer takes the write lock at once (waiting up to the busy timeout for another writer);
+    # a deferred transaction that reads first and writes later fails at once if another writer
+    # committed in between, which the busy timeout cannot help.
+    immediate = connection.get_execution_options().get(WRITE_OPTION)
+    connection.exec_driver_sql("BEGIN IMMEDIATE" if immediate else "BEGIN")
+
+
+def writer_engine(engine: Engine) -> Engine:
+    """The same engine (pool, settings) whose transactions are write transactions."""
+    return engine.execution_options(**{WRITE_OPTION: True})
+
+
+def is_busy(exc: BaseException) -> bool:
+    """True for SQLite's 'database is locked' (another writer held the catalogue past the busy timeout)
+    and PostgreSQL's lock timeouts."""
+    text = str(getattr(exc, "orig", exc) or "").lower()
+    return "database is locked" in text or "database table is locked" in text or "lock timeout" in text
+
+
+def busy_message() -> str:
+    seconds = SQLITE_BUSY_TIMEOUT_MS / 1000
+    return (f"the catalogue is busy: another writer (an import, a recompute or another edit) held it for more "
+            f"than {seconds:g} s; nothing was changed; try again when it has finished")
 
 
 def alembic_config(engine: Engine | None = None) -> Config:
@@ -170,7 +203,7 @@ def session_factory(engine: Engine) -> sessionmaker[Session]:
 
 
 class Catalogue:
-    """An opened catalogue: an engine and a session factory, schema checked."""
+    """An opened catalogue: an engine and session factories (reading, writing), schema checked."""
 
     def __init__(self, url: str, *, check: bool = True, create_folder: bool = False):
         self.url = url
@@ -178,11 +211,15 @@ class Catalogue:
         if check:
             check_schema(self.engine)
         self.sessions = session_factory(self.engine)
+        self.writer_sessions = session_factory(writer_engine(self.engine))
 
     @contextmanager
     def transaction(self) -> Iterator[Session]:
-        """One unit of work: commits on success, rolls everything back on any error."""
-        with self.sessions() as session:
+        """One unit of work that writes: commits on success, rolls everything back on any error.
+
+        On SQLite it starts with BEGIN IMMEDIATE: it waits (up to the busy timeout) while another
+        writer holds the catalogue, rather than failing halfway."""
+        with self.writer_sessions() as session:
             with session.begin():
                 yield session
 

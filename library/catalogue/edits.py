@@ -44,8 +44,11 @@ def _check_name(text: str, what: str) -> str:
         raise CurationError(f"the {what} is empty; every material needs a name")
     if len(text) > curation.MAX_NAME_CHARS:
         raise CurationError(f"the {what} is {len(text)} characters long (limit {curation.MAX_NAME_CHARS})")
-    if any(ord(c) < 32 for c in text):
+    if any(ord(c) < 32 or ord(c) == 127 for c in text):
         raise CurationError(f"the {what} {text[:40]!r} contains control characters")
+    if what == "synonym" and "|" in text:
+        raise CurationError(f"the synonym {text[:40]!r} contains '|', which separates synonyms; "
+                            "give each synonym on its own line")
     return text
 
 
@@ -79,8 +82,8 @@ def apply_changes(session: Session, material: Material, changes: MaterialChanges
         cas = check_cas(changes.cas) if (changes.cas or "").strip() else None
     except StructureError as exc:
         raise CurationError(str(exc)) from None
-    family = (changes.family or "").strip().lower() or None
-    notes = (changes.notes or "").strip() or None
+    family = curation.clean_family(changes.family)
+    notes = curation.clean_notes(changes.notes)
     odors = parse_odor_list((changes.odors or "").replace(",", "|"))
     source = Source.parse(changes.source, default="from memory")
     odor_source = Source.parse(changes.odor_source, default="from memory")
@@ -90,6 +93,9 @@ def apply_changes(session: Session, material: Material, changes: MaterialChanges
             func.lower(Material.preferred_name) == name.lower(), Material.id != material.id))
         if clash is not None:
             raise CurationError(f"the name {name!r} is already used by #{clash.id}; choose another name")
+    message = curation.name_clash(session, [name, *synonyms], exclude_id=material.id)
+    if message:
+        raise CurationError(message)
     if cas and cas != material.cas_rn:
         clash = session.scalar(select(Material).where(Material.cas_rn == cas, Material.id != material.id))
         if clash is not None:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import multiprocessing
 import os
 import signal
+import threading
 import time
 from collections import deque
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
@@ -50,11 +51,35 @@ class JobReport:
         return text
 
 
-def _worker_setup() -> None:
-    """Workers leave Ctrl-C to the parent and use one thread each (the parent runs one worker per core)."""
+PARENT_CHECK_S = 1.0
+
+
+def _worker_setup(parent_pid: int | None = None) -> None:
+    """Workers leave Ctrl-C to the parent, use one thread each (the parent runs one worker per core),
+    and die with their parent: the kernel sends SIGKILL when it dies (Linux PR_SET_PDEATHSIG), and a
+    watchdog thread checks every second that the parent is still there (every platform)."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     for variable in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ[variable] = "1"
+    if parent_pid is None:
+        return
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(1, signal.SIGKILL, 0, 0, 0)  # PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        pass
+    if os.getppid() != parent_pid:  # the parent died before we got here
+        os._exit(1)
+
+    def watch() -> None:
+        while True:
+            time.sleep(PARENT_CHECK_S)
+            if os.getppid() != parent_pid:
+                os._exit(1)
+
+    threading.Thread(target=watch, name="olibra-parent-watch", daemon=True).start()
 
 
 def _guarded(worker: Callable[[str], WorkerResult], smiles: str):
@@ -111,7 +136,8 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
         return report
     processes = max(1, min(processes or os.cpu_count() or 1, len(materials)))
     context = multiprocessing.get_context("spawn")
-    executor = ProcessPoolExecutor(max_workers=processes, mp_context=context, initializer=_worker_setup)
+    executor = ProcessPoolExecutor(max_workers=processes, mp_context=context, initializer=_worker_setup,
+                                   initargs=(os.getpid(),))
     pending: dict[Future, tuple[int, str, str]] = {}
     queue = deque(materials)
     try:

@@ -21,6 +21,7 @@ from sqlalchemy import (
     String,
     Text,
     UniqueConstraint,
+    false,
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
@@ -269,12 +270,17 @@ class CatalogueState(Base):
     revision: Mapped[int] = mapped_column(Integer, default=0)
 
 
-USER_ROLES = ("reader", "curator")
+USER_ROLES = ("reader", "curator", "admin")
 JOB_STATES = ("queued", "running", "finished", "failed", "interrupted")
 
 
 class User(Base):
-    """A person who signs in to the web interface: readers see everything, curators also write."""
+    """A person who signs in to the web interface: readers see everything, curators also write, admins
+    also manage accounts.
+
+    `session_generation` is written into every session cookie at sign-in; signing out, a password or role
+    change and disabling the account move it on, so every older cookie stops working at once.
+    """
 
     __tablename__ = "user_account"
     __table_args__ = (CheckConstraint(_one_of("role", USER_ROLES), name="role"),)
@@ -284,6 +290,8 @@ class User(Base):
     password_hash: Mapped[str] = mapped_column(String(255))
     role: Mapped[str] = mapped_column(String(10), default="reader")
     created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
+    session_generation: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
+    disabled: Mapped[bool] = mapped_column(Boolean, default=False, server_default=false())
 
 
 class BackgroundJob(Base):

@@ -56,10 +56,10 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "flags": ("search_commands", "list pair flags"),
     "observations": ("search_commands", "import measured data (panel profiles, receptor responses)"),
     "scorecard": ("search_commands", "how well each metric predicts observed similarity"),
-    "user": ("web_commands", "web interface accounts: add, list, change password"),
+    "user": ("web_commands", "web interface accounts: add, list, password, role, disable, enable, remove"),
     "serve": ("web_commands", "serve the web interface (waitress; 127.0.0.1:8150 by default)"),
     "demo": ("demo_commands", "build a demo catalogue from the seed files and compute its records"),
-    "bench": ("bench_commands", "print performance figures (shape, vibration, search, web, startup)"),
+    "bench": ("bench_commands", "print performance figures (shape, vibration, search, web, load, startup)"),
 }
 # One module per area; each has register(commands) adding the options of its commands.
 COMMAND_MODULES = list(dict.fromkeys(module for module, _ in COMMANDS.values()))
@@ -160,7 +160,12 @@ def _unexpected(exc: Exception) -> int:
     from sqlalchemy.exc import OperationalError  # imported only when something went wrong
 
     if isinstance(exc, OperationalError):
-        print(f"olibra: error: database problem: {str(exc.orig).strip().splitlines()[0]}", file=sys.stderr)
+        from library.catalogue.database import busy_message, is_busy
+
+        if is_busy(exc):
+            print(f"olibra: error: {busy_message()}", file=sys.stderr)
+        else:
+            print(f"olibra: error: database problem: {str(exc.orig).strip().splitlines()[0]}", file=sys.stderr)
         return EXIT_USER_ERROR
     if os.environ.get("OLIBRA_DEBUG"):
         traceback.print_exc()

@@ -57,8 +57,16 @@ def cmd_bench_startup(args) -> int:
     return 0
 
 
+def cmd_bench_load(args) -> int:
+    from benchmarks import web_load
+
+    _header("load", None)
+    web_load.run(args.db, sign_in_seconds=args.sign_in_seconds)
+    return 0
+
+
 BENCHES = {"shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
-           "web": cmd_bench_web, "startup": cmd_bench_startup}
+            "web": cmd_bench_web, "load": cmd_bench_load, "startup": cmd_bench_startup}
 
 
 def cmd_bench(args) -> int:
@@ -77,4 +85,6 @@ def register(commands) -> None:
                    help="startup: timed runs per command, after one warm-up run (default 7)")
     p.add_argument("--material",
                    help="startup: the material to show and search for (default Citral, in the demo catalogue)")
+    p.add_argument("--sign-in-seconds", type=float, default=60.0,
+                   help="load: length of the wrong-password burst against the sign-in throttle (0 skips it)")
     p.set_defaults(handler=cmd_bench)

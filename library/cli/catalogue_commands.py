@@ -281,10 +281,14 @@ def register(commands) -> None:
 
 def _add_with_file(args) -> int:
     candidate = Path(args.structure)
-    if args.structure.endswith((".mol", ".sdf", ".mdl")):
-        if not candidate.exists():
-            raise OlibraError(f"{candidate} does not exist")
-        args.structure = candidate.read_text(encoding="utf-8", errors="replace")
+    if args.structure.endswith((".mol", ".sdf", ".mdl")) or (len(args.structure) < 4096 and candidate.exists()):
+        data = transfer.read_file_bytes(candidate, "a molfile", limit=2**20)
+        if b"\x00" in data:
+            raise OlibraError(f"{candidate} contains a NUL byte; it is not a molfile (give a text molfile)")
+        try:
+            args.structure = data.decode("utf-8-sig")
+        except UnicodeDecodeError as exc:
+            raise OlibraError(f"{candidate} is not UTF-8 text (byte {exc.start}); save it as UTF-8") from None
     return cmd_add(args)
 
 

@@ -1,4 +1,4 @@
-"""Web commands: `olibra user add|list|password` (accounts) and `olibra serve` (the web interface)."""
+"""Web commands: `olibra user add|list|password|role|disable|enable|remove` (accounts) and `olibra serve`."""
 
 from __future__ import annotations
 
@@ -9,6 +9,7 @@ import sys
 
 from library.catalogue import accounts
 from library.catalogue.database import Catalogue, describe_url, resolve_url
+from library.catalogue.models import USER_ROLES
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
 
@@ -58,13 +59,46 @@ def cmd_user_password(args) -> int:
     return 0
 
 
+def _change_user(args, change, done: str) -> int:
+    catalogue = _catalogue(args)
+    actor = f"olibra user {args.action} ({getpass.getuser()})"
+    try:
+        with accounts.bookkeeping_sessions(catalogue.engine).begin() as session:
+            change(session, actor)
+    finally:
+        catalogue.dispose()
+    print(done)
+    return 0
+
+
+def cmd_user_role(args) -> int:
+    return _change_user(args, lambda s, actor: accounts.set_role(s, args.name, args.role, actor=actor),
+                        f"{args.name} is now {args.role}; their open sessions were ended")
+
+
+def cmd_user_disable(args) -> int:
+    return _change_user(args, lambda s, actor: accounts.set_disabled(s, args.name, True, actor=actor),
+                        f"{args.name} is disabled: cannot sign in, open sessions were ended")
+
+
+def cmd_user_enable(args) -> int:
+    return _change_user(args, lambda s, actor: accounts.set_disabled(s, args.name, False, actor=actor),
+                        f"{args.name} is enabled and can sign in again")
+
+
+def cmd_user_remove(args) -> int:
+    return _change_user(args, lambda s, actor: accounts.remove_user(s, args.name, actor=actor),
+                        f"{args.name} was removed (the audit trail keeps their name)")
+
+
 def cmd_user_list(args) -> int:
     catalogue = _catalogue(args)
     with accounts.bookkeeping_sessions(catalogue.engine)() as session:
-        rows = [{"name": u.username, "role": u.role, "created": u.created_at.strftime("%Y-%m-%d %H:%M")}
+        rows = [{"name": u.username, "role": u.role, "state": "disabled" if u.disabled else "enabled",
+                 "created": u.created_at.strftime("%Y-%m-%d %H:%M")}
                 for u in accounts.list_users(session)]
     catalogue.dispose()
-    emit(rows, ["name", "role", "created"], args.format)
+    emit(rows, ["name", "role", "state", "created"], args.format)
     if args.format == "table" and not rows:
         print("no users yet; add one with `olibra user add NAME --role curator`")
     return 0
@@ -104,7 +138,7 @@ def cmd_serve(args) -> int:
     app = create_app(config)
     with accounts.bookkeeping_sessions(catalogue.engine)() as session:
         users = accounts.list_users(session)
-    if not any(u.role == "curator" for u in users):
+    if not any(u.role in ("curator", "admin") and not u.disabled for u in users):
         print("note: no curator account yet; add one with `olibra user add NAME --role curator`",
               file=sys.stderr)
     abandoned = mark_abandoned(accounts.bookkeeping_sessions(catalogue.engine))
@@ -136,8 +170,9 @@ def register(commands) -> None:
     actions.required = True
     q = actions.add_parser("add", help="add a user (the password is asked for, or read with --password-stdin)")
     q.add_argument("name")
-    q.add_argument("--role", choices=("reader", "curator"), default="reader",
-                   help="reader (sees everything) or curator (also adds, edits, imports); default reader")
+    q.add_argument("--role", choices=USER_ROLES, default="reader",
+                   help="reader (sees everything), curator (also adds, edits, imports) or admin (also manages "
+                        "accounts in the web interface); default reader")
     q.add_argument("--password-stdin", action="store_true", help="read the password from standard input")
     q.set_defaults(handler=cmd_user_add)
     q = actions.add_parser("list", help="list users and their roles")
@@ -147,12 +182,24 @@ def register(commands) -> None:
     q.add_argument("name")
     q.add_argument("--password-stdin", action="store_true", help="read the password from standard input")
     q.set_defaults(handler=cmd_user_password)
+    q = actions.add_parser("role", help="change a user's role (ends their open sessions)")
+    q.add_argument("name")
+    q.add_argument("role", choices=USER_ROLES)
+    q.set_defaults(handler=cmd_user_role)
+    for action, handler, text in (("disable", cmd_user_disable, "stop a user signing in and end their sessions"),
+                                  ("enable", cmd_user_enable, "let a disabled user sign in again"),
+                                  ("remove", cmd_user_remove, "delete a user (the audit trail keeps the name)")):
+        q = actions.add_parser(action, help=text)
+        q.add_argument("name")
+        q.set_defaults(handler=handler)
 
     p = commands.add_parser("serve")
     p.add_argument("--host", default=DEFAULT_HOST,
                    help=f"address to listen on (default {DEFAULT_HOST}: this machine only)")
     p.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"port (default {DEFAULT_PORT})")
-    p.add_argument("--threads", type=int, default=4, help="request threads (default 4)")
+    p.add_argument("--threads", type=int, default=8,
+                   help="request threads (default 8; keep it above the heavy-search workers plus their queue, "
+                        "so that cheap pages are answered while heavy searches run)")
     p.add_argument("--processes", type=int, default=None,
                    help="worker processes for recompute jobs (default: one per core)")
     p.set_defaults(handler=cmd_serve)
