@@ -18,7 +18,7 @@ from library.catalogue.records import EngineStamp
 KINDS = ("shape", "vibration")
 # What a shape record holds besides the descriptors: the ensemble itself, so
 # that overlays need no new embedding.
-SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments/2"
+SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments+mirror flags/3"
 
 
 @dataclass(frozen=True)
@@ -86,13 +86,20 @@ def compute_material(plan: Plan, smiles: str) -> dict[str, tuple[dict, dict]]:
         description = shape.describe(ens)
         arrays = description.to_arrays()
         arrays.update(conformer_arrays(ens))
-        out["shape"] = (arrays, description.summary())
+        summary = description.summary()
+        # which ensemble the conformers came from: the embedded representative of each stereoisomer,
+        # and how many conformers are that representative's reflected
+        summary["ensemble_of"] = list(ens.representatives)
+        summary["mirrored_conformers"] = int(sum(m.mirrored for m in ens.members))
+        out["shape"] = (arrays, summary)
     if "vibration" in plan.kinds:
         from library.vibration import spectrum as spectrum_module
 
         result = spectrum_module.spectrum(ens, engine=plan.vibration_engine)
         arrays = result.to_arrays()
         arrays["fingerprint"] = spectrum_module.fingerprint(result)
+        if result.has_ir:  # every engine gives intensities (MMFF94 from its fixed partial charges)
+            arrays["fingerprint_ir"] = spectrum_module.fingerprint(result, intensity_weighting="ir")
         out["vibration"] = (arrays, result.summary())
     return out
 
@@ -108,6 +115,7 @@ def conformer_arrays(ens) -> dict[str, np.ndarray]:
         "conformer_weight": np.array([m.weight for m in ens.members]),
         "conformer_energy_kcal": np.array([m.energy_kcal for m in ens.members]),
         "conformer_stereoisomer": np.array([m.stereoisomer for m in ens.members]),
+        "conformer_mirrored": np.array([float(m.mirrored) for m in ens.members]),
         "atomic_number": np.array([a.GetAtomicNum() for a in ens.members[0].mol.GetAtoms()]),
     }
 
@@ -141,9 +149,10 @@ def ensemble_from_arrays(smiles: str, arrays: dict, *, max_members: int | None =
             conformer.SetAtomPosition(atom, Point3D(x, y, z))
         conformer.Set3D(True)
         mol.AddConformer(conformer, assignId=True)
+        mirrored = "conformer_mirrored" in arrays and bool(arrays["conformer_mirrored"][i])
         members.append(Conformer(mol=mol, energy_kcal=float(arrays["conformer_energy_kcal"][i]),
                                  weight=float(arrays["conformer_weight"][i]),
-                                 stereoisomer=int(arrays["conformer_stereoisomer"][i])))
+                                 stereoisomer=int(arrays["conformer_stereoisomer"][i]), mirrored=mirrored))
     stereoisomers = len(set(int(s) for s in arrays["conformer_stereoisomer"]))
     return ConformerEnsemble(members=tuple(members), force_field="stored",
                              stereoisomer_count=stereoisomers, parameters={})

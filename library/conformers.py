@@ -77,6 +77,16 @@ class Conformer:
     energy_kcal: float
     weight: float
     stereoisomer: int
+    mirrored: bool = False
+    vibration_mol: Chem.Mol | None = None
+
+    @property
+    def engine_mol(self) -> Chem.Mol:
+        """The molecule a vibration engine should see: the representative geometry in canonical atom
+        and bond order, isotopes of this material kept (see :func:`ensemble`). Frequencies and
+        intensities do not change under a reflection or a renumbering, so mirror images and
+        reordered inputs get exactly the same engine results."""
+        return self.vibration_mol if self.vibration_mol is not None else self.mol
 
 
 @dataclass(frozen=True)
@@ -87,6 +97,7 @@ class ConformerEnsemble:
     force_field: str
     stereoisomer_count: int
     parameters: dict = field(default_factory=dict)
+    representatives: tuple[str, ...] = ()  # SMILES whose conformers were embedded (one per stereoisomer)
 
     @property
     def weights(self) -> np.ndarray:
@@ -200,6 +211,7 @@ def parameters(
             else f"min({_CAP_BASE}+{_CAP_PER_ROTATABLE_BOND}*rotatable_bonds,{_CAP_CEILING})"
         ),
         "embed_oversampling": _EMBED_OVERSAMPLING,
+        "construction": "canonical atom and bond order; mirror images reflected from one representative",
         "energy_window_kcal": float(energy_window_kcal),
         "rmsd_threshold_a": float(rmsd_threshold_a),
         "temperature_k": float(temperature_k),
@@ -306,36 +318,98 @@ def _prune(mol_h: Chem.Mol, conf_ids: list[int], threshold_a: float,
     return kept
 
 
-def _working_copy(mol_h: Chem.Mol) -> tuple[Chem.Mol, list[int]]:
-    """Isotope-free copy in canonical atom order, and that order.
-
-    Isotopologues share one potential-energy surface, and a structure spelled
-    with atoms in another order is the same structure: both then get the same
-    conformers. Isotope labels that create stereo (e.g. CHD) are kept.
-    order[k] is the input index of working atom k.
-    """
+def _without_isotopes(mol_h: Chem.Mol) -> Chem.Mol:
+    """An isotope-free copy, unless isotope labels create stereo (e.g. CHD), which is then kept."""
     work = Chem.Mol(mol_h)
     for atom in work.GetAtoms():
         atom.SetIsotope(0)
     if len(Chem.FindPotentialStereo(work)) != len(Chem.FindPotentialStereo(mol_h)):
-        work = Chem.Mol(mol_h)
-    ranks = list(Chem.CanonicalRankAtoms(work, breakTies=True))
-    order = sorted(range(len(ranks)), key=ranks.__getitem__)
-    return Chem.RenumberAtoms(work, order), order
+        return Chem.Mol(mol_h)
+    return work
+
+
+def _working_copy(mol_h: Chem.Mol) -> tuple[Chem.Mol, list[int]]:
+    """Isotope-free copy in canonical atom and bond order, and that order.
+
+    Isotopologues share one potential-energy surface, and a structure spelled
+    with atoms in another order is the same structure: both then get the same
+    conformers, to the last digit. The copy is read back from the canonical
+    SMILES of its heavy atoms, hydrogens added after them, so its atoms and bonds
+    come in an order fixed by the graph alone (Chem.RenumberAtoms keeps the
+    input's bond order, which the embedding and the force field follow).
+    Isotope labels that create stereo (e.g. CHD) are kept. order[k] is the input
+    index of working atom k.
+    """
+    work = _without_isotopes(mol_h)
+    for atom in work.GetAtoms():
+        atom.SetIntProp("olibra_input_index", atom.GetIdx())
+    heavy = Chem.RemoveHs(work, sanitize=False)
+    smiles = Chem.MolToSmiles(heavy)
+    output = [int(i) for i in heavy.GetProp("_smilesAtomOutputOrder").strip("[],").split(",") if i.strip()]
+    order = [heavy.GetAtomWithIdx(i).GetIntProp("olibra_input_index") for i in output]
+    canonical = Chem.AddHs(Chem.MolFromSmiles(smiles))
+    if canonical.GetNumAtoms() != mol_h.GetNumAtoms():
+        raise ConformerError(f"cannot put {smiles!r} in canonical atom order: hydrogen counts differ")
+    hydrogens = {i: sorted(n.GetIdx() for n in work.GetAtomWithIdx(i).GetNeighbors()
+                           if n.GetAtomicNum() == 1 and n.GetIdx() not in order)
+                 for i in order}
+    for atom in list(canonical.GetAtoms())[len(order):]:
+        (parent,) = [n.GetIdx() for n in atom.GetNeighbors()]
+        order.append(hydrogens[order[parent]].pop(0))
+    return canonical, order
+
+
+def mirror_image(mol: Chem.Mol) -> Chem.Mol:
+    """The mirror image of `mol` as a structure: every tetrahedral centre inverted, atom order and
+    double-bond geometry kept (a reflection leaves E/Z unchanged)."""
+    out = Chem.Mol(mol)
+    for atom in out.GetAtoms():
+        tag = atom.GetChiralTag()
+        if tag == Chem.ChiralType.CHI_TETRAHEDRAL_CW:
+            atom.SetChiralTag(Chem.ChiralType.CHI_TETRAHEDRAL_CCW)
+        elif tag == Chem.ChiralType.CHI_TETRAHEDRAL_CCW:
+            atom.SetChiralTag(Chem.ChiralType.CHI_TETRAHEDRAL_CW)
+    return out
+
+
+def representative(mol: Chem.Mol) -> tuple[Chem.Mol, bool]:
+    """The member of `mol`'s mirror-image pair whose conformers are embedded, and whether `mol` is the
+    other one (its conformers are then the representative's, reflected).
+
+    Of the structure and its mirror image, the one with the smaller canonical SMILES (isotopes
+    ignored unless they make the stereo) represents both; an achiral structure represents itself.
+    """
+    mirrored = mirror_image(mol)
+    own = Chem.MolToSmiles(_without_isotopes(mol))
+    other = Chem.MolToSmiles(_without_isotopes(mirrored))
+    return (mirrored, True) if other < own else (mol, False)
 
 
 def _single_conformer_mol(mol_h: Chem.Mol, work: Chem.Mol, order: list[int],
-                          conf_id: int) -> Chem.Mol:
-    """`mol_h` (input order, isotopes) with the coordinates of one working conformer."""
+                          conf_id: int, *, mirrored: bool = False) -> Chem.Mol:
+    """`mol_h` (input order, isotopes) with the coordinates of one working conformer, reflected
+    through the yz plane (x -> -x, exact in floating point) when `mirrored`."""
     out = Chem.Mol(mol_h)
     out.RemoveAllConformers()
     positions = work.GetConformer(conf_id).GetPositions()
+    if mirrored:
+        positions = positions * np.array([-1.0, 1.0, 1.0])
     conf = Chem.Conformer(out.GetNumAtoms())
     for k, original in enumerate(order):
         conf.SetAtomPosition(original, Point3D(*positions[k]))
     conf.Set3D(True)
     conf.SetId(0)
     out.AddConformer(conf, assignId=False)
+    return out
+
+
+def _engine_copy(mol_h: Chem.Mol, work: Chem.Mol, order: list[int], conf_id: int) -> Chem.Mol:
+    """The working molecule (canonical order, the representative's own geometry) with the isotopes
+    of `mol_h` and one conformer: what the vibration engines compute on."""
+    out = Chem.Mol(work, confId=conf_id)
+    for k, original in enumerate(order):
+        out.GetAtomWithIdx(k).SetIsotope(mol_h.GetAtomWithIdx(original).GetIsotope())
+    out.GetConformer().SetId(0)
     return out
 
 
@@ -360,8 +434,13 @@ def ensemble(
     enumerated (at most max_stereoisomers) and weighted equally; an
     enumerated stereoisomer that cannot be embedded while another can (an
     inverted bridgehead) is dropped. Conformers are computed on an
-    isotope-free copy in canonical atom order, so isotopologues and
-    reordered inputs share geometries. Deterministic for a given input and seed.
+    isotope-free copy in canonical atom and bond order, so isotopologues and
+    reordered inputs share geometries exactly; a stereoisomer whose mirror image
+    is the representative of the pair (see :func:`representative`) gets the
+    representative's conformers reflected, with the same energies and weights,
+    so enantiomers are exact mirror images. Each member also carries the
+    unreflected canonical copy the vibration engines compute on
+    (:attr:`Conformer.engine_mol`). Deterministic for a given input and seed.
     """
     _check_knobs(max_conformers, energy_window_kcal, rmsd_threshold_a, temperature_k,
                  max_stereoisomers)
@@ -372,55 +451,67 @@ def ensemble(
     cap = math.ceil(total_cap / len(isomers))
     attempts = math.ceil(cap * _EMBED_OVERSAMPLING)
 
-    # First pass: quick embedding of every stereoisomer. An enumerated
-    # stereoisomer that fails it while another succeeds is taken to be
-    # geometrically impossible and dropped; otherwise retry thoroughly.
-    embedded = []
+    # Each stereoisomer is embedded through the representative of its mirror-image pair, once per
+    # representative: a mirror image gets the representative's conformers reflected, so a pair of
+    # enantiomers (or the two halves of a racemate) share one set of geometries and energies.
+    # First pass: quick embedding. An enumerated stereoisomer that fails it while another succeeds
+    # is taken to be geometrically impossible and dropped; otherwise retry thoroughly.
+    plans = []  # per stereoisomer: (input molecule with Hs, representative key, order, mirrored)
+    works: dict[str, Chem.Mol] = {}
+    conformer_ids: dict[str, list[int]] = {}
     for isomer in isomers:
-        mol_h = Chem.AddHs(isomer)
-        work, order = _working_copy(mol_h)
-        ids = _embed(work, attempts, seed, rmsd_threshold_a, thorough=False)
-        embedded.append((mol_h, work, order, ids))
-    if any(entry[3] for entry in embedded):
-        embedded = [entry for entry in embedded if entry[3]]
-    else:
-        embedded = [
-            (mol_h, work, order, _embed(work, attempts, seed, rmsd_threshold_a, thorough=True))
-            for mol_h, work, order, _ in embedded
-        ]
-        failed = [Chem.MolToSmiles(Chem.RemoveHs(m)) for m, _, _, ids in embedded if not ids]
+        rep, mirrored = representative(isomer)
+        work, order = _working_copy(Chem.AddHs(rep))
+        key = Chem.MolToSmiles(Chem.RemoveHs(work, sanitize=False))
+        if key not in works:
+            works[key] = work
+            conformer_ids[key] = _embed(work, attempts, seed, rmsd_threshold_a, thorough=False)
+        plans.append((Chem.AddHs(isomer), key, order, mirrored))
+    if not any(conformer_ids.values()):
+        for key, work in works.items():
+            conformer_ids[key] = _embed(work, attempts, seed, rmsd_threshold_a, thorough=True)
+        failed = [key for key, ids in conformer_ids.items() if not ids]
         if failed:
             raise ConformerError(
                 f"3D embedding failed for {failed[0]!r} even from random coordinates; "
                 "check for strained or impossible stereochemistry"
             )
-    n_isomers = len(embedded)
+    plans = [plan for plan in plans if conformer_ids[plan[1]]]
+    n_isomers = len(plans)
 
-    kept_conformers: list[tuple[Chem.Mol, float, int]] = []
+    kept_by_key: dict[str, list[tuple[int, float]]] = {}
     force_fields: set[str] = set()
-    for index, (mol_h, work, order, conf_ids) in enumerate(embedded):
+    for key, work in works.items():
+        if not conformer_ids[key]:
+            continue
         force_field = _force_field(work)
         force_fields.add(force_field)
         energies = _optimize(work, force_field)
         by_id = dict(zip([c.GetId() for c in work.GetConformers()], energies))
-        if not all(math.isfinite(by_id[c]) for c in conf_ids):
+        if not all(math.isfinite(by_id[c]) for c in conformer_ids[key]):
             raise ConformerError("force-field optimization returned a non-finite energy")
-        by_energy = sorted(conf_ids, key=lambda c: (by_id[c], c))
+        by_energy = sorted(conformer_ids[key], key=lambda c: (by_id[c], c))
         e_min = by_id[by_energy[0]]
         in_window = [c for c in by_energy if by_id[c] - e_min <= energy_window_kcal]
-        kept = _prune(work, in_window, rmsd_threshold_a, cap)
-        kept_conformers += [(_single_conformer_mol(mol_h, work, order, cid), by_id[cid] - e_min, index)
-                            for cid in kept]
-    energies = np.array([energy for _, energy, _ in kept_conformers], dtype=np.float64)
-    groups = np.array([index for _, _, index in kept_conformers])
+        kept_by_key[key] = [(cid, by_id[cid] - e_min) for cid in _prune(work, in_window, rmsd_threshold_a, cap)]
+    kept_conformers: list[tuple[Chem.Mol, Chem.Mol, float, int, bool]] = []
+    for index, (mol_h, key, order, mirrored) in enumerate(plans):
+        work = works[key]
+        kept_conformers += [(_single_conformer_mol(mol_h, work, order, cid, mirrored=mirrored),
+                             _engine_copy(mol_h, work, order, cid), energy, index, mirrored)
+                            for cid, energy in kept_by_key[key]]
+    energies = np.array([entry[2] for entry in kept_conformers], dtype=np.float64)
+    groups = np.array([entry[3] for entry in kept_conformers])
     weights = boltzmann_weights(energies, groups, temperature_k=temperature_k)
-    members = [Conformer(mol=conformer_mol, energy_kcal=float(energy), weight=float(weight), stereoisomer=int(index))
-               for (conformer_mol, energy, index), weight in zip(kept_conformers, weights)]
+    members = [Conformer(mol=conformer_mol, energy_kcal=float(energy), weight=float(weight), stereoisomer=int(index),
+                         mirrored=mirrored, vibration_mol=engine_mol)
+               for (conformer_mol, engine_mol, energy, index, mirrored), weight in zip(kept_conformers, weights)]
     force_field = "MMFF94" if force_fields == {"MMFF94"} else "UFF"
     return ConformerEnsemble(
         members=tuple(members),
         force_field=force_field,
         stereoisomer_count=n_isomers,
+        representatives=tuple(plan[1] for plan in plans),
         parameters=parameters(
             max_conformers=max_conformers,
             energy_window_kcal=energy_window_kcal,

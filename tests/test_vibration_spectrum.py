@@ -118,7 +118,12 @@ def test_round_trip_through_arrays(ethyl_acetate):
 
 def test_main_bands_and_band_matching(ethyl_acetate, ethyl_acetate_d8):
     bands = main_bands(ethyl_acetate, n=6)
-    assert len(bands) == 6
+    labels = {b.label for b in bands if b.label}
+    # ethyl acetate's diagnostic groups: an ester C=O and C-H bonds (from the structure)
+    assert {"C=O", "C-H"} <= labels and 6 <= len(bands) <= 6 + len(labels)
+    carbonyl = next(b for b in bands if b.label == "C=O")
+    assert 1650 <= carbonyl.position_cm1 <= 1900  # ester C=O, textbook 1735-1750; MMFF94 within ~10 %
+    assert "C-D" in {b.label for b in main_bands(ethyl_acetate_d8, n=6)}
     assert bands[0].relative_height == 1.0
     assert all(a.relative_height >= b.relative_height for a, b in zip(bands, bands[1:]))
     same = match_bands(ethyl_acetate, ethyl_acetate)
@@ -142,8 +147,13 @@ def test_plot_files(tmp_path, ethyl_acetate, ethyl_acetate_d8):
 
 
 def test_bad_requests_are_explained(ethyl_acetate):
-    with pytest.raises(VibrationInputError, match="gfn2"):
-        fingerprint(ethyl_acetate, intensity_weighting="ir")
+    # A spectrum read from an older record that carries no intensities cannot be IR-weighted.
+    without_ir = dataclasses.replace(ethyl_acetate, conformers=tuple(
+        dataclasses.replace(c, ir_intensities_km_mol=None) for c in ethyl_acetate.conformers))
+    with pytest.raises(VibrationInputError, match="no infrared intensities"):
+        fingerprint(without_ir, intensity_weighting="ir")
+    with pytest.raises(VibrationInputError, match="intensity_weighting must be one of"):
+        fingerprint(ethyl_acetate, intensity_weighting="raman")
     with pytest.raises(VibrationInputError, match="same grid"):
         cosine_similarity(np.ones(801), np.ones(800))
     with pytest.raises(VibrationInputError, match="all zeros"):

@@ -350,9 +350,11 @@ def read_rows(path: Path | str, *, data: bytes | None = None) -> list[InputRow]:
         data = read_file_bytes(path, "a CSV, SDF or JSON file", limit=MAX_FILE_BYTES)
     text = _decode(data, label)
     suffix = path.suffix.lower()
-    if suffix == ".json" or (suffix not in (".csv", ".tsv", ".txt") and text.lstrip().startswith("{")):
+    sdf_suffixes = (".sdf", ".sd", ".mol")
+    if suffix == ".json" or (suffix not in (".csv", ".tsv", ".txt") + sdf_suffixes
+                             and text.lstrip().startswith("{")):
         return read_json_rows(text, label)
-    if suffix in (".sdf", ".sd", ".mol") or (suffix not in (".csv", ".tsv", ".txt") and "M  END" in text):
+    if suffix in sdf_suffixes or (suffix not in (".csv", ".tsv", ".txt") and "M  END" in text):
         return read_sdf_rows(text, label)
     return read_csv_rows(text, label)
 

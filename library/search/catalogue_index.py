@@ -189,6 +189,9 @@ def _load_features(session, stamps, ready: list[int], infos: dict[int, MaterialI
                for kind in needed_kinds()}
     out = {}
     for name, feature in metric_registry.FEATURES.items():
+        if feature.record_kind is not None and not all(
+                part in by_kind[feature.record_kind][i].arrays for i in ready for part in feature.arrays):
+            continue  # some record predates this feature: the metrics reading it are left out
         rows = [metric_registry.feature_row(name, {k: by_kind[k][i].arrays for k in by_kind}, infos[i].smiles)
                 for i in ready]
         out[name] = rows if feature.record_kind is None else np.stack(rows)

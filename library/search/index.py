@@ -792,7 +792,7 @@ class SimilarityIndex:
         clusters = min(n, self.clusters or max(1, int(round(math.sqrt(n)))))
         # Vibrational fingerprints group less tightly than shape moments (measured at 100k: probing
         # clusters/12 groups found 0.67 of the true top 10, clusters/3 found 0.85), so they probe more.
-        share = VIBRATION_PROBE_SHARE if metric.name == "vibration" else SHAPE_PROBE_SHARE
+        share = VIBRATION_PROBE_SHARE if isinstance(metric, metric_registry.VibrationMetric) else SHAPE_PROBE_SHARE
         probes = min(clusters, self.probes or max(1, int(math.ceil(clusters / share))))
         rng = np.random.default_rng(self.random_state)
         sample = rng.choice(n, size=min(n, 30 * clusters), replace=False)

@@ -142,6 +142,8 @@ FEATURES: dict[str, Feature] = {
                 "shape", ("usrcat", "chiral"), float_rows, _shape_sums),
         Feature("fingerprint", "EVA fingerprint of the conformer-averaged harmonic spectrum, unit norm",
                 "vibration", ("fingerprint",), unit_rows),
+        Feature("fingerprint_ir", "EVA fingerprint with each mode weighted by its IR intensity, unit norm",
+                "vibration", ("fingerprint_ir",), unit_rows),
         Feature("structure", "Morgan radius-2, 2048-bit fingerprint, packed", None, (), packed_bits, _bit_words),
     )
 }
@@ -319,10 +321,33 @@ def _l1_one_to_many(query: np.ndarray, rows: np.ndarray, row_sums: np.ndarray | 
     return np.maximum(out, np.float32(0.0), out=out)
 
 
+# The fingerprint grid (library.vibration.spectrum.FINGERPRINT_DEFAULTS): 0-4000 cm^-1 in 5 cm^-1 steps.
+FINGERPRINT_GRID_CM1 = (0.0, 4000.0)
+
+
+def window_columns(width: int, window_cm1: tuple[float, float]) -> slice:
+    """The fingerprint columns inside `window_cm1` on the grid of `width` evenly spaced points."""
+    low, high = FINGERPRINT_GRID_CM1
+    step = (high - low) / (width - 1)
+    return slice(int(np.ceil((window_cm1[0] - low) / step - 1e-9)), int(np.floor((window_cm1[1] - low) / step + 1e-9)) + 1)
+
+
 @dataclass(frozen=True)
 class VibrationMetric(Metric):
+    """Cosine of fingerprints (the metric's one feature), optionally over a window of the grid only."""
+
+    window_cm1: tuple[float, float] | None = None
+
+    def _vectors(self, block: Block) -> np.ndarray:
+        values = block[self.features[0]]
+        if self.window_cm1 is None:
+            return values
+        part = values[..., window_columns(values.shape[-1], self.window_cm1)]
+        norms = np.sqrt(np.einsum("...d,...d->...", part, part))
+        return part / np.where(norms > 0, norms, np.inf)[..., None].astype(np.float32)
+
     def similarity(self, query, catalogue, *, aligned=False, weight=DEFAULT_WEIGHT):
-        a, b = query["fingerprint"], catalogue["fingerprint"]
+        a, b = self._vectors(query), self._vectors(catalogue)
         if aligned:
             dot = np.einsum("...d,...d->...", a, b)
         else:
@@ -333,7 +358,7 @@ class VibrationMetric(Metric):
         return np.clip(dot, 0.0, 1.0).astype(np.float32)
 
     def first_stage(self, index, query, *, weight=DEFAULT_WEIGHT, full=None):
-        if getattr(index, "compressed_", None) is None:
+        if getattr(index, "compressed_", None) is None or self.features != ("fingerprint",) or self.window_cm1:
             return None
         from library._threads import one_blas_thread
 
@@ -346,9 +371,10 @@ class VibrationMetric(Metric):
         return out
 
     def candidate_space(self, index, rows):
-        if getattr(index, "compressed_", None) is not None:
+        if self.features == ("fingerprint",) and not self.window_cm1 and getattr(index, "compressed_", None) is not None:
             return index.compressed_[rows], index.row_bias_[rows]
-        return index.features_["fingerprint"][rows], np.zeros(len(rows), np.float32)
+        vectors = self._vectors(index.block(rows, self.features))
+        return vectors, np.zeros(len(rows), np.float32)
 
 
 @dataclass(frozen=True)
@@ -451,6 +477,13 @@ register(OverlayMetric(
 register(VibrationMetric(
     "vibration", "cosine of EVA fingerprints of the conformer-averaged harmonic spectra",
     features=("fingerprint",), records=("vibration",)))
+register(VibrationMetric(
+    "vibration-ir", "cosine of EVA fingerprints with each mode weighted by its IR intensity",
+    features=("fingerprint_ir",), records=("vibration",)))
+register(VibrationMetric(
+    "vibration-window", "cosine of EVA fingerprints over 400-2400 cm-1 only, below the X-H stretches that "
+    "dominate every organic spectrum", features=("fingerprint",), records=("vibration",),
+    window_cm1=(400.0, 2400.0)))
 register(BlendMetric(
     "blend", "w * shape + (1 - w) * vibration, w the shape weight (0-1)",
     components=("shape", "vibration"), records=("shape", "vibration"), uses_weight=True))

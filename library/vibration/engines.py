@@ -162,6 +162,26 @@ def single_conformer_copy(mol, conf_id: int = -1):
     return work
 
 
+def _soft_modes_at_magnitude(modes):
+    """The modes with their few small negative curvatures (above the engine's imaginary tolerance: the
+    numerical noise of a flat torsion at a minimum) counted at their magnitude, and how many there were.
+
+    A true imaginary mode never gets here (the driver re-optimizes or refuses the geometry), so every
+    mode of a returned result is a real vibration: none is dropped from spectra or fingerprints, and
+    `n_imaginary` counts real imaginary modes only (zero).
+    """
+    import dataclasses
+
+    negative = modes.frequencies_cm1 < 0
+    if not negative.any():
+        return modes, 0
+    order = np.argsort(np.abs(modes.frequencies_cm1), kind="stable")
+    return dataclasses.replace(
+        modes, frequencies_cm1=np.abs(modes.frequencies_cm1)[order], displacements=modes.displacements[order],
+        mass_weighted_vectors=modes.mass_weighted_vectors[:, order], imaginary=np.zeros(order.size, bool),
+        soft=negative[order]), int(negative.sum())
+
+
 def vibrations(engine: ModuleType | str, mol, *, conf_id: int = -1, **knobs):
     """Harmonic vibrations of one conformer (explicit hydrogens, 3D) under `engine`: a ConformerVibrations.
 
@@ -198,9 +218,10 @@ def vibrations(engine: ModuleType | str, mol, *, conf_id: int = -1, **knobs):
             reoptimizations += 1
             direction = modes.displacements[int(np.argmin(modes.frequencies_cm1))]
             positions = x + 0.1 * (direction / np.abs(direction).max()).ravel()
-        intensities = None if dipole_derivatives is None else ir_intensities_km_mol(dipole_derivatives, modes)
+    modes, soft = _soft_modes_at_magnitude(modes)
+    intensities = None if dipole_derivatives is None else ir_intensities_km_mol(dipole_derivatives, modes)
     residual = float(np.linalg.norm(gradient))
-    notes = quality_notes(reoptimizations=reoptimizations, modes=modes,
+    notes = quality_notes(reoptimizations=reoptimizations, soft_modes=soft,
                           imaginary_tolerance_cm1=chosen["imaginary_tolerance_cm1"], residual_kcal_mol_a=residual,
                           gradient_tolerance_kcal_mol_a=chosen["gradient_tolerance_kcal_mol_a"])
     return ConformerVibrations(
@@ -212,4 +233,5 @@ def vibrations(engine: ModuleType | str, mol, *, conf_id: int = -1, **knobs):
         ir_intensities_km_mol=intensities,
         reoptimizations=reoptimizations,
         notes=tuple(notes),
+        soft_modes=soft,
     )

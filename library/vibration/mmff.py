@@ -75,6 +75,7 @@ class ForceFieldModel:
             raise VibrationInputError(f"MMFF variant must be 'MMFF94' or 'MMFF94s', got {variant!r}")
         self.mol = single_conformer_copy(mol, conf_id)
         properties = rdForceFieldHelpers.MMFFGetMoleculeProperties(self.mol, mmffVariant=variant)
+        self.properties = properties
         if properties is None or not rdForceFieldHelpers.MMFFHasAllMoleculeParams(self.mol):
             elements = sorted({a.GetSymbol() for a in self.mol.GetAtoms()})
             raise MissingParametersError(
@@ -165,7 +166,15 @@ class ConformerModel:
     when the gradient norm stays above `gradient_tolerance_kcal_mol_a` (RDKit's minimizer
     typically leaves ~5e-4 kcal/mol/A). The Hessian is recomputed only if the polish moved the
     geometry by more than 1e-3 A: over smaller moves its change shifts wavenumbers by far less
-    than 0.1 cm^-1. MMFF94 gives no dipole derivatives here.
+    than 0.1 cm^-1.
+
+    Dipole derivatives come from MMFF94's fixed partial charges (bond-charge increments, J. Comput.
+    Chem. 17, 490 (1996)): the dipole is sum_i q_i r_i, so d(mu_b)/d(x_ia) = q_i delta_ab. This is the
+    fixed-charge (no charge flux) estimate of infrared intensities, and its limits are those of the
+    model: polar stretches and bends (C=O, C≡N, O-H, C-O) come out strong as they should, but MMFF94
+    gives hydrogen on carbon a charge near zero, so C-H stretches, which carry real intensity from
+    the charge moving along the bond, come out far too weak; relative heights among polar bands are
+    qualitative. GFN2-xTB's intensities, from the wavefunction, include charge flux.
     """
 
     def __init__(self, mol: Chem.Mol, *, variant: str, step_a: float, scheme: str,
@@ -201,10 +210,18 @@ class ConformerModel:
         self._hessian_at = (x.copy(), hessian)
         return x, float(energy), gradient
 
-    def hessian(self, positions_a: np.ndarray) -> tuple[np.ndarray, None]:
+    def dipole_derivatives(self) -> np.ndarray:
+        """(3N, 3) Cartesian dipole derivatives in elementary charges from the fixed partial charges."""
+        charges = np.array([self.field_model_charge(i) for i in range(self.field.mol.GetNumAtoms())])
+        return np.kron(charges[:, None], np.eye(3))
+
+    def field_model_charge(self, atom: int) -> float:
+        return float(self.field.properties.GetMMFFPartialCharge(atom))
+
+    def hessian(self, positions_a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if self._hessian_at is not None and np.array_equal(self._hessian_at[0], positions_a):
-            return self._hessian_at[1], None
-        return self._hessian(np.asarray(positions_a, dtype=float)), None
+            return self._hessian_at[1], self.dipole_derivatives()
+        return self._hessian(np.asarray(positions_a, dtype=float)), self.dipole_derivatives()
 
 
 def model(mol: Chem.Mol, **settings) -> ConformerModel:

@@ -53,6 +53,8 @@ class NormalModes:
         Cartesian coordinates.
     is_linear: True when only two rotations exist (3N-5 vibrations).
     imaginary: boolean mask of modes with a negative force constant.
+    soft: boolean mask of modes whose small negative curvature (numerical noise at a minimum) the
+        vibration driver turned into its magnitude (None: not examined).
     """
 
     frequencies_cm1: np.ndarray
@@ -61,6 +63,7 @@ class NormalModes:
     masses_amu: np.ndarray
     is_linear: bool
     imaginary: np.ndarray
+    soft: np.ndarray | None = None
 
     @property
     def n_imaginary(self) -> int:

@@ -21,6 +21,8 @@ class ConformerVibrations:
     modes: the normal-mode analysis (frequencies in cm^-1, imaginary flagged).
     ir_intensities_km_mol: (n_modes,) or None when the engine gives no dipoles.
     reoptimizations: how many times an imaginary mode forced a displaced re-optimization.
+    soft_modes: modes whose small negative curvature (noise above the engine's tolerance) is
+        counted at its magnitude.
     notes: human-readable remarks (for example a remaining imaginary mode).
     """
 
@@ -32,6 +34,7 @@ class ConformerVibrations:
     ir_intensities_km_mol: np.ndarray | None
     reoptimizations: int = 0
     notes: tuple[str, ...] = ()
+    soft_modes: int = 0  # small negative curvatures (noise) counted at their magnitude
 
     @property
     def frequencies_cm1(self) -> np.ndarray:
@@ -44,16 +47,16 @@ class ConformerVibrations:
         return self.modes.n_imaginary
 
 
-def quality_notes(*, reoptimizations: int, modes: NormalModes, imaginary_tolerance_cm1: float,
+def quality_notes(*, reoptimizations: int, soft_modes: int, imaginary_tolerance_cm1: float,
                   residual_kcal_mol_a: float, gradient_tolerance_kcal_mol_a: float) -> list[str]:
-    """Remarks every engine attaches to a conformer result: re-optimizations, small imaginary
-    modes kept, and a residual gradient above tolerance."""
+    """Remarks every engine attaches to a conformer result: re-optimizations, soft modes counted at
+    their magnitude, and a residual gradient above tolerance."""
     notes = []
     if reoptimizations:
         notes.append(f"saddle point re-optimized {reoptimizations} time(s) along its imaginary mode")
-    if modes.n_imaginary:
-        notes.append(f"{modes.n_imaginary} small imaginary mode(s) above -{imaginary_tolerance_cm1} cm^-1 kept "
-                     "(numerical noise of a flat mode)")
+    if soft_modes:
+        notes.append(f"{soft_modes} soft mode(s) with a small negative curvature (above -{imaginary_tolerance_cm1:g} "
+                     "cm^-1: numerical noise of a flat torsion) counted at their magnitude")
     if residual_kcal_mol_a > gradient_tolerance_kcal_mol_a:
         notes.append(f"residual gradient {residual_kcal_mol_a:.2e} kcal/mol/A above tolerance "
                      f"{gradient_tolerance_kcal_mol_a:.0e}")

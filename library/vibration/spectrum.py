@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 from rdkit import Chem
 
-from library.vibration import engines
+from library.vibration import engines, groups
 from library.vibration.errors import VibrationInputError
 
 FINGERPRINT_DEFAULTS = {
@@ -45,6 +45,11 @@ def record_parameters(engine: str = "mmff", *, temperature_k: float = 298.15, **
         "engine": engines.engine_module(engine).parameters(),
         "temperature_k": float(temperature_k),
         "fingerprint": dict(FINGERPRINT_DEFAULTS),
+        "fingerprint_ir": dict(FINGERPRINT_DEFAULTS, intensity_weighting="ir"),
+        "modes": {"soft modes": "small negative curvatures counted at their magnitude",
+                  "same minimum": [SAME_MINIMUM_RMSD_A, SAME_MINIMUM_ENERGY_KCAL],
+                  "groups": [[label, smarts, low, high] for label, smarts, _, low, high in groups.GROUPS],
+                  "group participation": groups.MIN_PARTICIPATION},
     }
 
 
@@ -57,11 +62,15 @@ def parameters(*, engine: str = "mmff", **knobs) -> dict:
 class ConformerSpectrum:
     """Harmonic wavenumbers of one conformer.
 
-    frequencies_cm1: ascending wavenumbers (cm^-1); imaginary modes negative.
+    frequencies_cm1: ascending wavenumbers (cm^-1); a real imaginary mode would be negative (the
+        engines refuse such a geometry, so none is stored).
     ir_intensities_km_mol: same length, or None when the engine gives no dipoles.
     energy_kcal: engine energy relative to the lowest conformer of the same stereoisomer (kcal/mol).
     weight: population within the material (all weights sum to 1).
     residual_gradient_kcal_mol_a: gradient norm where the Hessian was taken (kcal/mol/A).
+    mode_groups: per mode, the index into library.vibration.groups.LABELS of the diagnostic group it
+        belongs to, or -1 (None for records computed before groups were assigned).
+    soft_mode_count: modes whose small negative curvature (noise) is counted at its magnitude.
     """
 
     frequencies_cm1: np.ndarray
@@ -70,6 +79,8 @@ class ConformerSpectrum:
     weight: float
     stereoisomer: int
     residual_gradient_kcal_mol_a: float
+    mode_groups: np.ndarray | None = None
+    soft_mode_count: int = 0
 
     @property
     def n_imaginary(self) -> int:
@@ -111,6 +122,9 @@ class VibrationSpectrum:
         if self.has_ir:
             arrays["ir_intensities_km_mol"] = np.concatenate(
                 [c.ir_intensities_km_mol for c in self.conformers]).astype(np.float32)
+        if all(c.mode_groups is not None for c in self.conformers):
+            arrays["mode_groups"] = np.concatenate([c.mode_groups for c in self.conformers]).astype(np.float32)
+        arrays["soft_mode_counts"] = np.array([c.soft_mode_count for c in self.conformers], dtype=np.float32)
         return arrays
 
     def summary(self) -> dict:
@@ -126,7 +140,9 @@ class VibrationSpectrum:
             "has_ir": self.has_ir,
             "main_bands_cm1": [round(b.position_cm1, 1) for b in bands],
             "main_band_heights": [round(b.relative_height, 3) for b in bands],
+            "main_band_groups": [b.label or "" for b in bands],
             "imaginary_mode_count": sum(c.n_imaginary for c in self.conformers),
+            "soft_mode_count": sum(c.soft_mode_count for c in self.conformers),
             "max_residual_gradient_kcal_mol_a": float(self.max_residual_gradient_kcal_mol_a),
             "notes": list(self.notes),
         }
@@ -138,6 +154,8 @@ class VibrationSpectrum:
             counts = np.asarray(arrays["mode_counts"]).astype(int)
             frequencies = np.asarray(arrays["frequencies_cm1"], dtype=float)
             intensities = arrays.get("ir_intensities_km_mol")
+            groups = arrays.get("mode_groups")
+            soft = arrays.get("soft_mode_counts")
             offsets = np.concatenate([[0], np.cumsum(counts)])
             if offsets[-1] != len(frequencies):
                 raise VibrationInputError("stored mode counts do not add up to the stored frequencies")
@@ -151,12 +169,70 @@ class VibrationSpectrum:
                     weight=float(arrays["weights"][i]),
                     stereoisomer=int(arrays["stereoisomers"][i]),
                     residual_gradient_kcal_mol_a=float(arrays["residual_gradients_kcal_mol_a"][i]),
+                    mode_groups=None if groups is None else np.asarray(groups[part]).astype(int),
+                    soft_mode_count=0 if soft is None else int(soft[i]),
                 ))
             return cls(engine=summary["engine"], engine_version=summary["engine_version"],
                        temperature_k=float(summary["temperature_k"]), conformers=tuple(members),
                        notes=tuple(summary.get("notes", ())))
         except KeyError as missing:
             raise VibrationInputError(f"stored vibration record lacks {missing}; recompute it") from missing
+
+
+def _engine_results(module, ens, knobs: dict) -> list:
+    """The engine's vibrations of every member; members whose engine input is the same molecule at the
+    same coordinates (the two halves of a racemate, an isotope-free racemic pair) are computed once."""
+    results, done = [], {}
+    for member in ens.members:
+        mol = member.engine_mol
+        key = (Chem.MolToSmiles(mol), mol.GetConformer().GetPositions().tobytes())
+        if key not in done:
+            done[key] = engines.vibrations(module, mol, **knobs)
+        results.append(done[key])
+    return results
+
+
+# Two re-optimized conformers of one stereoisomer closer than this (heavy-atom RMSD after the best
+# superposition, angstrom) and this close in energy (kcal/mol) are one minimum.
+SAME_MINIMUM_RMSD_A = 0.05
+SAME_MINIMUM_ENERGY_KCAL = 0.05
+
+
+def _distinct_minima(ens, results) -> list[int]:
+    """Indices of the members to keep: a member whose engine minimum repeats that of a lower-energy member
+    of the same stereoisomer (two force-field conformers that collapse into one minimum on re-optimization)
+    would count that minimum twice."""
+    from rdkit.Chem import rdMolAlign
+
+    from library.conformers import heavy_atom_mol
+
+    order = sorted(range(len(results)), key=lambda i: (ens.members[i].stereoisomer, results[i].energy_kcal, i))
+    kept: list[int] = []
+    heavy: dict[int, Chem.Mol] = {}
+
+    def minimum(i):
+        if i not in heavy:
+            mol = Chem.Mol(ens.members[i].engine_mol)
+            conformer = mol.GetConformer()
+            for atom, xyz in enumerate(results[i].positions_a):
+                conformer.SetAtomPosition(atom, xyz.tolist())
+            heavy[i] = heavy_atom_mol(mol)
+        return heavy[i]
+
+    for i in order:
+        duplicate = False
+        for j in kept:
+            if ens.members[j].stereoisomer != ens.members[i].stereoisomer:
+                continue
+            if abs(results[i].energy_kcal - results[j].energy_kcal) > SAME_MINIMUM_ENERGY_KCAL:
+                continue
+            if results[i] is results[j] or (minimum(i).GetNumAtoms() >= 2 and rdMolAlign.GetBestRMS(
+                    minimum(j), minimum(i), maxMatches=64) < SAME_MINIMUM_RMSD_A):
+                duplicate = True
+                break
+        if not duplicate:
+            kept.append(i)
+    return sorted(kept)
 
 
 def spectrum(ens, *, engine: str = "mmff", temperature_k: float = 298.15, processes: int | None = 1,
@@ -181,16 +257,22 @@ def spectrum(ens, *, engine: str = "mmff", temperature_k: float = 298.15, proces
         check(ens)
     if "processes" in module.RUNTIME_KNOBS:
         engine_knobs.setdefault("processes", processes)
-    results = [engines.vibrations(module, member.mol, **engine_knobs) for member in ens.members]
-    stereoisomers = np.array([member.stereoisomer for member in ens.members])
+    results = _engine_results(module, ens, engine_knobs)
+    kept = _distinct_minima(ens, results)
+    merged = len(results) - len(kept)
+    members_in, results = [ens.members[i] for i in kept], [results[i] for i in kept]
+    stereoisomers = np.array([member.stereoisomer for member in members_in])
     energies = np.array([r.energy_kcal for r in results])
     weights = conformer_module.boltzmann_weights(energies, stereoisomers, temperature_k=temperature_k)
     relative = energies.copy()
     for label in np.unique(stereoisomers):
         relative[stereoisomers == label] -= energies[stereoisomers == label].min()
     notes = []
-    for index, r in enumerate(results):
+    for index, r in zip(kept, results):
         notes.extend(f"conformer {index}: {note}" for note in r.notes)
+    if merged:
+        notes.append(f"{merged} conformer(s) reached the same {module.DISPLAY_NAME} minimum as another of their "
+                     "stereoisomer and were merged into it")
     members = tuple(
         ConformerSpectrum(
             frequencies_cm1=r.frequencies_cm1,
@@ -199,8 +281,10 @@ def spectrum(ens, *, engine: str = "mmff", temperature_k: float = 298.15, proces
             weight=float(w),
             stereoisomer=int(s),
             residual_gradient_kcal_mol_a=r.residual_gradient_kcal_mol_a,
+            mode_groups=groups.mode_groups(m.engine_mol, r.modes.mass_weighted_vectors, r.frequencies_cm1),
+            soft_mode_count=r.soft_modes,
         )
-        for r, e, w, s in zip(results, relative, weights, stereoisomers)
+        for m, r, e, w, s in zip(members_in, results, relative, weights, stereoisomers)
     )
     return VibrationSpectrum(engine=module.ENGINE_NAME, engine_version=module.ENGINE_VERSION,
                              temperature_k=float(temperature_k), conformers=members, notes=tuple(notes))
@@ -223,8 +307,8 @@ def _modes_and_amplitudes(spec: VibrationSpectrum, intensity_weighting: str) -> 
             f"intensity_weighting must be one of {_INTENSITY_WEIGHTINGS}, got {intensity_weighting!r}")
     if intensity_weighting == "ir" and not spec.has_ir:
         raise VibrationInputError(
-            f"this spectrum ({spec.engine}) has no infrared intensities; use intensity_weighting='none' "
-            "or compute it with engine='gfn2'")
+            f"this spectrum ({spec.engine}) has no infrared intensities (it was read from a record made "
+            "before intensities were stored); use intensity_weighting='none' or recompute its records")
     positions, amplitudes = [], []
     for c in spec.conformers:
         real = c.frequencies_cm1 > 0  # imaginary modes carry no band
@@ -331,21 +415,30 @@ def cosine_similarity(fp_a: np.ndarray, fp_b: np.ndarray) -> float:
 
 @dataclass(frozen=True)
 class Band:
-    """A band of the smoothed spectrum: peak position (cm^-1) and height relative to the tallest (0-1]."""
+    """A band of the smoothed spectrum: peak position (cm^-1), height relative to the tallest (0-1], and
+    the diagnostic group whose modes make it (library.vibration.groups.LABELS), if any."""
 
     position_cm1: float
     relative_height: float
+    label: str | None = None
+
+
+GROUP_BAND_TOLERANCE_CM1 = 10.0  # a group's own peak this close to a main band labels that band
 
 
 def main_bands(spec: VibrationSpectrum, n: int | None = 8, *, sigma_cm1: float = 10.0,
                intensity_weighting: str = "auto", min_cm1: float = 200.0, max_cm1: float = 4000.0,
                min_relative_height: float = 0.05) -> tuple[Band, ...]:
-    """The `n` tallest peaks of the smoothed spectrum (1 cm^-1 grid), tallest first.
+    """The `n` tallest peaks of the smoothed spectrum (1 cm^-1 grid), tallest first, plus a band for
+    every diagnostic group the molecule has (C=O, C≡N, O-H, N-H, C=C, C-D ...), labelled with it.
 
     Peaks are local maxima of the Boltzmann-averaged curve (IR-weighted when
     the spectrum has intensities and `intensity_weighting` is 'auto'), at
     least `min_relative_height` of the tallest; the far-infrared below
     `min_cm1` (torsions, least reliable) is left out. `n=None` keeps all.
+    A group's band is the peak of the curve of its own modes (see library.vibration.groups); it
+    labels the main band within 10 cm^-1 of it, or joins the list however small it is, so the bands a
+    substitution is about (an aldehyde's C=O, a nitrile's C≡N) are never left out.
     """
     grid = grid_cm1(min_cm1=min_cm1, max_cm1=max_cm1, step_cm1=1.0)
     positions, amplitudes = _modes_and_amplitudes(spec, intensity_weighting)
@@ -359,7 +452,31 @@ def main_bands(spec: VibrationSpectrum, n: int | None = 8, *, sigma_cm1: float =
     order = peaks[np.argsort(-curve[peaks], kind="stable")]
     if n is not None:
         order = order[:n]
-    return tuple(Band(float(grid[i]), float(curve[i] / top)) for i in order)
+    bands = [Band(float(grid[i]), float(curve[i] / top)) for i in order]
+    mode_groups = _mode_groups(spec)
+    if mode_groups is not None:
+        from library.vibration.groups import LABELS
+
+        for index in sorted(set(mode_groups[mode_groups >= 0].tolist())):
+            own = _smoothed(positions[mode_groups == index], amplitudes[mode_groups == index], grid, sigma_cm1)
+            if own.max(initial=0.0) <= 0:
+                continue
+            peak = int(np.argmax(own))
+            near = [k for k, b in enumerate(bands) if abs(b.position_cm1 - grid[peak]) <= GROUP_BAND_TOLERANCE_CM1
+                    and b.label is None]
+            if near:
+                k = min(near, key=lambda k: abs(bands[k].position_cm1 - grid[peak]))
+                bands[k] = Band(bands[k].position_cm1, bands[k].relative_height, LABELS[index])
+            else:
+                bands.append(Band(float(grid[peak]), float(max(curve[peak], 0.0) / top), LABELS[index]))
+    return tuple(sorted(bands, key=lambda b: -b.relative_height))
+
+
+def _mode_groups(spec: VibrationSpectrum) -> np.ndarray | None:
+    """The group index of every real mode, in the order of _modes_and_amplitudes (None without groups)."""
+    if any(c.mode_groups is None for c in spec.conformers):
+        return None
+    return np.concatenate([c.mode_groups[c.frequencies_cm1 > 0] for c in spec.conformers])
 
 
 @dataclass(frozen=True)
