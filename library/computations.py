@@ -18,7 +18,7 @@ from library.catalogue.records import EngineStamp
 KINDS = ("shape", "vibration")
 # What a shape record holds besides the descriptors: the ensemble itself, so
 # that overlays need no new embedding.
-SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments+mirror flags/3"
+SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments and shape values+mirror flags/4"
 
 
 @dataclass(frozen=True)
@@ -97,20 +97,30 @@ def compute_material(plan: Plan, smiles: str) -> dict[str, tuple[dict, dict]]:
 
         result = spectrum_module.spectrum(ens, engine=plan.vibration_engine)
         arrays = result.to_arrays()
-        arrays["fingerprint"] = spectrum_module.fingerprint(result)
-        if result.has_ir:  # every engine gives intensities (MMFF94 from its fixed partial charges)
-            arrays["fingerprint_ir"] = spectrum_module.fingerprint(result, intensity_weighting="ir")
+        arrays.update(fingerprint_arrays(result))
         out["vibration"] = (arrays, result.summary())
+    return out
+
+
+def fingerprint_arrays(result) -> dict[str, np.ndarray]:
+    """The fingerprints a vibration record stores for a spectrum: plain EVA, and IR-weighted when the
+    spectrum has intensities (every engine gives them; MMFF94 from its fixed partial charges)."""
+    from library.vibration import spectrum as spectrum_module
+
+    out = {"fingerprint": spectrum_module.fingerprint(result)}
+    if result.has_ir:
+        out["fingerprint_ir"] = spectrum_module.fingerprint(result, intensity_weighting="ir")
     return out
 
 
 def conformer_arrays(ens) -> dict[str, np.ndarray]:
     """The ensemble as arrays: coordinates (A), weights, energies (kcal/mol), stereoisomer index, atoms,
-    and each conformer's USR and chiral moments."""
+    each conformer's USR and chiral moments, and its 72 shape values (USRCAT and chiral moments)."""
     from library import shape
 
     return {
         "conformer_moments": shape.conformer_moments(ens),
+        "conformer_shape": shape.conformer_shape_values(ens),
         "conformer_xyz_a": np.stack([m.mol.GetConformer(0).GetPositions() for m in ens.members]),
         "conformer_weight": np.array([m.weight for m in ens.members]),
         "conformer_energy_kcal": np.array([m.energy_kcal for m in ens.members]),

@@ -12,7 +12,7 @@ stereoisomers.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import scipy.constants
@@ -370,6 +370,27 @@ def mirror_image(mol: Chem.Mol) -> Chem.Mol:
         elif tag == Chem.ChiralType.CHI_TETRAHEDRAL_CCW:
             atom.SetChiralTag(Chem.ChiralType.CHI_TETRAHEDRAL_CW)
     return out
+
+
+def superposable_on_mirror_image(mol_or_smiles: Chem.Mol | str) -> bool:
+    """True when a structure is its own mirror image (achiral, meso, or a material whose stereo is
+    left open, i.e. both hands): its mirror image has the same canonical SMILES, isotopes included."""
+    mol = to_mol(mol_or_smiles)
+    return Chem.MolToSmiles(mirror_image(mol)) == Chem.MolToSmiles(mol)
+
+
+def reflected(ens: ConformerEnsemble) -> ConformerEnsemble:
+    """The mirror image of a conformer ensemble: every conformer reflected through the yz plane
+    (x -> -x, exact in floating point), tetrahedral stereo tags inverted, energies and weights kept."""
+    members = []
+    for member in ens.members:
+        mol = mirror_image(member.mol)
+        for conformer in mol.GetConformers():
+            positions = conformer.GetPositions()
+            for atom, (x, y, z) in enumerate(positions):
+                conformer.SetAtomPosition(atom, Point3D(-x, y, z))
+        members.append(replace(member, mol=mol, mirrored=not member.mirrored))
+    return replace(ens, members=tuple(members))
 
 
 def representative(mol: Chem.Mol) -> tuple[Chem.Mol, bool]:

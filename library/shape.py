@@ -289,6 +289,17 @@ def conformer_moments(ens: ConformerEnsemble) -> np.ndarray:
     return np.asarray(rows, dtype=np.float32)
 
 
+def conformer_shape_values(ens: ConformerEnsemble) -> np.ndarray:
+    """(conformers, 72) float32: each conformer's USRCAT (60) and chiral (12) moments, the values whose
+    Boltzmann-weighted mean is the material's shape vector (:func:`shape_vector`)."""
+    rows = []
+    for member in ens.members:
+        target = _shape_atoms(member.mol)
+        rows.append(np.concatenate([rdMolDescriptors.GetUSRCAT(target, confId=0),
+                                    chiral_moments(target.GetConformer(0).GetPositions())]))
+    return np.asarray(rows, dtype=np.float32)
+
+
 def best_conformer_similarity(moments_a: np.ndarray, moments_b: np.ndarray) -> float:
     """Largest USR similarity 1/(1 + mean |a - b|) over all conformer pairs of two materials (0-1)."""
     from library.search.metrics import usr_similarity

@@ -6,7 +6,7 @@ import pytest
 from catalogue_helpers import draft
 from library import computations
 from library.catalogue import curation, jobs, observations
-from library.search import catalogue_index, disagreement_policy, evidence, pairs, substitutes
+from library.search import catalogue_index, disagreement_policy, evidence, metrics, pairs, substitutes
 
 # Real aroma materials (structures from memory); the test pairs that the two hypotheses
 # treat differently: a mirror-image pair and an isotopologue pair.
@@ -114,12 +114,29 @@ def test_new_structure_is_computed_on_the_fly_and_not_stored(searchable, index):
 def test_compare_explains_the_mirror_image_pair(searchable, index):
     catalogue, _ = searchable
     result = pairs.compare(catalogue, "(R)-carvone", "(S)-carvone", cat_index=index)
-    # enantiomers have identical harmonic frequencies (textbook: same potential energy surface)
-    assert result.scores["vibration"] > 0.999
+    # enantiomers have identical harmonic frequencies (textbook: same potential energy surface), and
+    # olibra computes them from one ensemble, so the fingerprints agree to float precision
+    for name in ("vibration", "vibration-ir", "vibration-window"):
+        assert result.scores[name] == pytest.approx(1.0, abs=1e-6)
+        assert result.spreads[name] == pytest.approx(0.0, abs=1e-6)  # they are resampled together
     assert result.scores["structure"] == 1.0  # Morgan bits ignore stereo unless asked
-    assert result.scores["shape"] < 0.995 and result.scores["overlay"] < 0.99
+    # a rotation cannot superpose the two hands; the handedness score says so, the shape vector barely
+    assert result.scores["handedness"] < 0.999 and result.scores["overlay"] < 0.999
+    assert result.scores["handedness"] < result.scores["shape"]
+    assert result.spreads["shape"] > 0  # conformer noise is reported, not hidden
     bands = result.explanation["bands"]
     assert bands.score == 1.0 and not bands.unmatched_a
+
+
+def test_compare_gives_isotopologues_one_shape(searchable, index):
+    catalogue, _ = searchable
+    result = pairs.compare(catalogue, "Benzaldehyde", "Benzaldehyde-d6", cat_index=index)
+    assert result.scores["shape"] == pytest.approx(1.0, abs=1e-6)
+    assert result.spreads["shape"] == pytest.approx(0.0, abs=1e-6)
+    assert result.scores["handedness"] == 1.0  # achiral: neutral by construction
+    # C-H stretches near 3000-3100 cm-1 move to C-D near 2200-2300 cm-1 (ratio ~1/sqrt(2), textbook)
+    assert result.scores["vibration"] < 0.9
+    assert "C-D" in result.explanation["bands"].to_dict()["groups"]["b"].values()
 
 
 def test_disagreements_surface_the_isotopologue_and_mirror_image_pairs(searchable, index):
@@ -130,7 +147,9 @@ def test_disagreements_surface_the_isotopologue_and_mirror_image_pairs(searchabl
     assert isotopologue.pair.direction == "shape-not-vibration"
     assert isotopologue.pair.shape > 0.999 and isotopologue.pair.vibration < 0.9
     mirror = pairs[frozenset(("(R)-carvone", "(S)-carvone"))]
-    assert mirror.pair.direction == "vibration-not-shape" and mirror.basis == "indistinguishable by vibration"
+    assert mirror.pair.direction == "vibration-not-shape"
+    assert mirror.basis == "indistinguishable by vibration, told apart by handedness"
+    assert mirror.pair.vibration == pytest.approx(1.0, abs=1e-6) and mirror.pair.handedness < 0.999
     assert label == "odor descriptor Jaccard"
     assert rows[0].basis.startswith("indistinguishable")
 
@@ -156,7 +175,7 @@ def test_flags_and_observations_feed_the_scorecard(searchable, index, tmp_path):
     assert report.stored and report.values == 32
     scores, label, _ = evidence.run_scorecard(catalogue, observation="demo panel", permutations=99,
                                              resamples=99, k=2, cat_index=index)
-    assert [s.metric for s in scores] == ["shape", "vibration", "blend", "structure"]
+    assert [s.metric for s in scores] == list(metrics.names(indexed=True))
     for s in scores:
         assert -1 <= s.spearman <= 1 and 0 < s.mantel_p <= 1 and s.ci_low <= s.ci_high and s.materials == 8
     assert "profile correlation" in label

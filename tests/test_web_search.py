@@ -17,8 +17,11 @@ import pytest
 from sqlalchemy import func, select
 
 from library.catalogue import curation, observations
+from library.search import metrics
 from library.catalogue.database import Catalogue
 from library.catalogue.models import PairFlag
+
+INDEXED_METRICS = metrics.names(indexed=True)
 
 from web_helpers import computed_catalogue_template, write_requests
 
@@ -83,7 +86,7 @@ def test_substitutes_page_shows_every_metric_depictions_previews_and_the_caution
     rows = re.findall(r"<tr>\s*<td class=\"num\">(\d+)</td>(.*?)</tr>", page, re.DOTALL)
     assert [int(rank) for rank, _ in rows] == [1, 2, 3, 4, 5]
     for _, row in rows:
-        assert len(re.findall(r'class="num score', row)) == 4  # shape, vibration, blend, structure
+        assert len(re.findall(r'class="num score', row)) == len(INDEXED_METRICS)  # one cell per indexed metric
         assert "/depiction.svg" in row and 'class="chart preview"' in row
     assert all(word in page for word in CAUTION_WORDS)
     api = reader.get("/api/substitutes?material=Citral&metric=blend&weight=0.3&k=5").get_json()
@@ -193,8 +196,9 @@ def test_compare_shows_the_mirror_image_pair(reader, catalogue):
     assert text.count("/depiction.svg") == 2 and all(word in text for word in CAUTION_WORDS)
     body = reader.get("/api/compare?a=(R)-(-)-Carvone&b=(S)-(%2B)-Carvone").get_json()
     # enantiomers have identical harmonic frequencies (textbook: same potential energy surface)
-    assert body["scores"]["vibration"] > 0.999 and body["bands"]["score"] == 1.0 and not body["bands"]["only_a"]
-    assert body["scores"]["shape"] < 0.995 and 0 < body["volume_ratio"] <= 1.0
+    assert body["scores"]["vibration"] == 1.0 and body["bands"]["score"] == 1.0 and not body["bands"]["only_a"]
+    assert body["scores"]["handedness"] < 0.999 and 0 < body["volume_ratio"] <= 1.0
+    assert body["spreads"]["vibration"] == 0.0 and body["resamples"] > 0
     assert text.count('class="band-matched"') == len(body["bands"]["matched"])
 
 
@@ -227,7 +231,8 @@ def test_disagreements_list_both_telling_pairs_with_basis_and_observations(reade
     assert isotopologues["direction"] == "shape-not-vibration"
     assert isotopologues["basis"] == "indistinguishable by shape"
     mirror = pairs[frozenset(("(R)-(-)-Carvone", "(S)-(+)-Carvone"))]
-    assert mirror["direction"] == "vibration-not-shape" and mirror["basis"] == "indistinguishable by vibration"
+    assert mirror["direction"] == "vibration-not-shape"
+    assert mirror["basis"] == "indistinguishable by vibration, told apart by handedness"
     assert body["observed"] == "odor descriptor Jaccard" and mirror["observed"] is not None
     assert "IFRA" in body["caution"]
     page = reader.get("/disagreements").text
@@ -333,7 +338,7 @@ def test_scorecard_page_and_api(reader):
     assert page.status_code == 200, error_text(page)
     assert 'class="chart scorecard"' in page.text and all(word in page.text for word in CAUTION_WORDS)
     body = reader.get("/api/scorecard?observation=descriptors&permutations=19&resamples=20&k=3").get_json()
-    assert [m["metric"] for m in body["metrics"]] == ["shape", "vibration", "blend", "structure"]
+    assert [m["metric"] for m in body["metrics"]] == list(INDEXED_METRICS)
     for m in body["metrics"]:
         assert -1 <= m["spearman"] <= 1 and m["ci_low"] <= m["ci_high"]
         assert 1 / 20 <= m["mantel_p"] <= 1  # (1 + count) / (1 + permutations)

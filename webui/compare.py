@@ -7,6 +7,7 @@ from __future__ import annotations
 from flask import Blueprint, render_template, request
 
 from library.errors import OlibraError
+from library.search import metrics as metric_registry
 from library.search.spectra import spectrum_profile
 from webui import charts, explore, web_state
 from webui.errors import user_message
@@ -29,6 +30,7 @@ def index():
         except OlibraError as exc:
             error, result = user_message(exc), None
     return render_template("compare/index.html", a=a, b=b, result=result, chart=chart, error=error,
+                           metrics=metric_registry.metrics(),
                            weight=request.args.get("weight", "0.5")), 400 if error else 200
 
 

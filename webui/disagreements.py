@@ -16,8 +16,8 @@ from webui.errors import user_message
 
 blueprint = Blueprint("disagreements", __name__)
 
-CSV_COLUMNS = ["direction", "basis", "a_id", "a", "b_id", "b", "gap", "shape", "vibration", "structure",
-               "observed", "sides_with", "flags"]
+CSV_COLUMNS = ["direction", "basis", "a_id", "a", "b_id", "b", "gap", "shape", "vibration", "handedness",
+               "within_noise", "structure", "observed", "sides_with", "flags"]
 MAX_NOTE_CHARS = 1000
 COLUMNS = [("direction", "Direction"), ("basis", "Basis"), ("a", "Material A"), ("b", "Material B"),
            ("gap", "Gap"), ("shape", "Shape"), ("vibration", "Vibration"), ("structure", "Structure"),

@@ -248,13 +248,6 @@ def compare(args):
     return heavy("the comparison", work)
 
 
-def bands_json(bands) -> dict:
-    return {"tolerance_cm1": bands.tolerance_cm1, "score": round(bands.score, 4),
-            "matched": [[round(x.position_cm1, 1), round(y.position_cm1, 1)] for x, y in bands.pairs],
-            "only_a": [round(x.position_cm1, 1) for x in bands.unmatched_a],
-            "only_b": [round(y.position_cm1, 1) for y in bands.unmatched_b]}
-
-
 def comparison_json(result) -> dict:
     def material(info):
         return {"id": info.id, "name": info.name, "cas": info.cas_rn, "smiles": info.smiles, "odors": list(info.odors)}
@@ -263,7 +256,9 @@ def comparison_json(result) -> dict:
             "overlay_tanimoto": round(result.explanation["overlay_tanimoto"], 4),
             "overlay_tversky": round(result.explanation["overlay_tversky"], 4),
             "volume_ratio": round(result.explanation["volume_ratio"], 4),
-            "bands": bands_json(result.explanation["bands"]), "caution": substitutes.CAUTION}
+            "handedness": round(result.explanation["handedness"], 4),
+            "spreads": {k: round(v, 4) for k, v in result.spreads.items()}, "resamples": result.resamples,
+            "bands": result.explanation["bands"].to_dict(), "caution": substitutes.CAUTION}
 
 
 # ---------------------------------------------------------------- disagreements
@@ -322,6 +317,8 @@ def disagreement_row(row) -> dict:
     return {"direction": p.direction, "basis": row.basis,
             "a": {"id": row.a.id, "name": row.a.name}, "b": {"id": row.b.id, "name": row.b.name},
             "gap": round(p.score, 4), "shape": round(p.shape, 4), "vibration": round(p.vibration, 4),
+            "handedness": None if p.handedness is None else round(p.handedness, 4),
+            "within_noise": row.within_noise,
             "structure": None if p.structure is None else round(p.structure, 4),
             "observed": None if p.observed is None else round(p.observed, 4),
             "sides_with": p.sides_with, "flags": list(row.flags)}

@@ -61,7 +61,8 @@ def cmd_search(args) -> int:
         include_restricted=args.include_restricted)
     outcome = find_substitutes(
         catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
-        rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine)
+        rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine,
+        include_demo=args.include_demo)
     print_substitutes(outcome, fmt=args.format, explain=args.explain, rerank_depth=args.rerank_depth)
     return 0
 
@@ -111,19 +112,22 @@ def _explanation_fields(explanation: dict) -> dict:
             "bands_matched": len(bands.pairs), "bands_unmatched": len(bands.unmatched_a) + len(bands.unmatched_b)}
 
 
-def band_lines(bands, limit: int) -> list[str]:
-    """Matched and unmatched main bands, in order of position (cm-1), for printing."""
-    lines = [(a.position_cm1, f"{a.position_cm1:7.0f} ~ {b.position_cm1:7.0f}  matched") for a, b in bands.pairs]
-    lines += [(a.position_cm1, f"{a.position_cm1:7.0f} ~       -  only in the first") for a in bands.unmatched_a]
-    lines += [(b.position_cm1, f"      - ~ {b.position_cm1:7.0f}  only in the second") for b in bands.unmatched_b]
-    return [text for _, text in sorted(lines)][:limit]
-
-
-def bands_dict(bands) -> dict:
-    return {"tolerance_cm1": bands.tolerance_cm1, "score": bands.score,
-            "matched": [[a.position_cm1, b.position_cm1] for a, b in bands.pairs],
-            "only_a": [a.position_cm1 for a in bands.unmatched_a],
-            "only_b": [b.position_cm1 for b in bands.unmatched_b]}
+def band_lines(bands, limit: int | None) -> tuple[list[str], int]:
+    """Matched and unmatched main bands in order of position (cm-1), each with its diagnostic group
+    when it has one, for printing; and how many were left out by `limit` (None or 0: none)."""
+    def group(*found):
+        labels = sorted({b.label for b in found if b.label})
+        return f"  [{', '.join(labels)}]" if labels else ""
+    lines = [(a.position_cm1, f"{a.position_cm1:7.0f} ~ {b.position_cm1:7.0f}  matched{group(a, b)}")
+             for a, b in bands.pairs]
+    lines += [(a.position_cm1, f"{a.position_cm1:7.0f} ~       -  only in the first{group(a)}")
+              for a in bands.unmatched_a]
+    lines += [(b.position_cm1, f"      - ~ {b.position_cm1:7.0f}  only in the second{group(b)}")
+              for b in bands.unmatched_b]
+    ordered = [text for _, text in sorted(lines)]
+    if not limit or limit >= len(ordered):
+        return ordered, 0
+    return ordered[:limit], len(ordered) - limit
 
 
 def cmd_compare(args) -> int:
@@ -134,20 +138,29 @@ def cmd_compare(args) -> int:
         print(json.dumps({
             "a": {"id": result.a.id, "name": result.a.name}, "b": {"id": result.b.id, "name": result.b.name},
             "scores": result.scores, "blend_weight": result.weight,
+            "spreads": result.spreads, "resamples": result.resamples,
             "overlay_tversky": result.explanation["overlay_tversky"],
             "volume_ratio": result.explanation["volume_ratio"],
-            "bands": bands_dict(bands)}, indent=2, default=float))
+            "bands": bands.to_dict()}, indent=2, default=float))
         return 0
     print(f"#{result.a.id} {result.a.name}  vs  #{result.b.id} {result.b.name}")
     for metric, value in result.scores.items():
-        print(f"  {metric:<10} {value:.4f}")
+        spread = result.spreads.get(metric)
+        noise = f"  ± {spread:.4f}" if spread is not None else ""
+        print(f"  {metric:<17} {value:.4f}{noise}")
+    if result.spreads:
+        print(f"  (± one standard deviation over {result.resamples} conformer resamples; overlay, handedness "
+              "and structure are not resampled)")
     print(f"  (blend weight {result.weight}; overlay Tversky {result.explanation['overlay_tversky']:.4f}, "
           f"volume ratio {result.explanation['volume_ratio']:.3f})")
     print(f"  main bands matched within {bands.tolerance_cm1:g} cm-1: {len(bands.pairs)} "
           f"(band score {bands.score:.3f}); only in {result.a.name}: {len(bands.unmatched_a)}; "
           f"only in {result.b.name}: {len(bands.unmatched_b)}")
-    for line in band_lines(bands, args.bands):
+    shown, left_out = band_lines(bands, args.bands)
+    for line in shown:
         print(f"    {line}")
+    if left_out:
+        print(f"    ... {left_out} more band(s) not shown (--bands 0 lists every band)")
     print(f"caution: {CAUTION}")
     return 0
 
@@ -164,11 +177,13 @@ def cmd_disagreements(args) -> int:
         p = r.pair
         table.append({"direction": p.direction, "basis": r.basis, "a": f"#{r.a.id} {r.a.name}", "b": f"#{r.b.id} {r.b.name}",
                       "gap": round(p.score, 4), "shape": round(p.shape, 4), "vibration": round(p.vibration, 4),
+                      "handedness": None if p.handedness is None else round(p.handedness, 4),
+                      "within_noise": r.within_noise,
                       "structure": None if p.structure is None else round(p.structure, 4),
                       "observed": None if p.observed is None else round(p.observed, 3),
                       "sides_with": p.sides_with, "flags": "; ".join(r.flags)})
-    emit(table, ["direction", "basis", "a", "b", "gap", "shape", "vibration", "structure", "observed", "sides_with",
-                 "flags"], args.format)
+    emit(table, ["direction", "basis", "a", "b", "gap", "shape", "vibration", "handedness", "within_noise",
+                 "structure", "observed", "sides_with", "flags"], args.format)
     if args.format == "table":
         print(f"{len(rows)} pair(s) found, {len(table)} shown"
               + (f"; observed similarity: {label}" if label else ""))
@@ -282,6 +297,8 @@ def register(commands) -> None:
     p.add_argument("--without-odor", nargs="+", metavar="TERM", help="candidates must not have these")
     p.add_argument("--include-retired", action="store_true")
     p.add_argument("--include-restricted", action="store_true")
+    p.add_argument("--include-demo", action="store_true",
+                   help="let demo entries (invented odor notes, e.g. the deuterated isotopologues) be listed")
     p.add_argument("--rerank-depth", type=int, default=DEFAULT_RERANK_DEPTH,
                    help="shape metric: order this many candidates by Gaussian overlay (default "
                         f"{DEFAULT_RERANK_DEPTH}; 0: moments only)")
@@ -295,7 +312,7 @@ def register(commands) -> None:
     p = commands.add_parser("compare")
     p.add_argument("a")
     p.add_argument("b")
-    p.add_argument("--bands", type=int, default=12, help="band lines to print (default 12)")
+    p.add_argument("--bands", type=int, default=0, help="band lines to print (default 0: every band)")
     _add_common(p, fmt=False)
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(handler=cmd_compare)

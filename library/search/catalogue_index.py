@@ -40,6 +40,7 @@ class MaterialInfo:
     restricted: bool
     molecular_weight: float
     logp: float
+    demo: bool = False  # every odor descriptor of the material is demo data (an invented entry)
 
 
 @dataclass(frozen=True)
@@ -163,7 +164,8 @@ def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int
         selectinload(Material.odors).selectinload(MaterialOdor.descriptor)).order_by(Material.id))
     infos = {m.id: MaterialInfo(m.id, m.preferred_name, m.smiles, m.cas_rn,
                                 tuple(sorted(o.descriptor.term for o in m.odors)), m.status, m.restricted,
-                                m.average_mass_g_per_mol, logp(m.smiles))
+                                m.average_mass_g_per_mol, logp(m.smiles),
+                                bool(m.odors) and all(o.source_kind == "demo" for o in m.odors))
              for m in materials}
     kinds = needed_kinds()
     state = {kind: records.record_state(session, stamps[kind], include_retired=True) for kind in kinds}

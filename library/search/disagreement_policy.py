@@ -27,12 +27,19 @@ class DisagreementRow:
     b: MaterialInfo
     flags: list[str]
     basis: str  # 'indistinguishable by shape' | 'indistinguishable by vibration' | 'thresholds'
+    # True when the gap is smaller than the conformer noise of the two scores (see
+    # library.search.uncertainty); None when not assessed (rows past `noise_rows`)
+    within_noise: bool | None = None
 
 
 def telling_pairs(index: SimilarityIndex, lists, observed, *, observed_alike: float,
-                  observed_unalike: float) -> list[tuple[disagreements.Disagreement, str]]:
+                  observed_unalike: float, handedness_of=None) -> list[tuple[disagreements.Disagreement, str]]:
     """Pairs one metric cannot tell apart while the other can: isotopologues (same shape, other
-    vibrations) and mirror-image pairs (same vibrations, other chiral shape)."""
+    vibrations) and mirror-image pairs (same vibrations, other handedness).
+
+    `handedness_of(pairs)` scores the handedness metric (on demand, from stored conformers) of the
+    pairs with indistinguishable spectra: the shape vector's chiral part is too small a share of it
+    to tell a mirror-image pair apart, the handedness score is built to."""
     candidates = set()
     for found in lists:
         for row, neighbors in zip(found.rows.tolist(), found.neighbor_rows.tolist()):
@@ -41,25 +48,53 @@ def telling_pairs(index: SimilarityIndex, lists, observed, *, observed_alike: fl
     if not candidates:
         return []
     scores = index.pair_scores([a for a, _ in candidates], [b for _, b in candidates])
+    alike_spectra = [i for i in range(len(candidates)) if float(scores["vibration"][i]) >= INDISTINGUISHABLE]
+    handedness = (handedness_of([(int(index.ids_[candidates[i][0]]), int(index.ids_[candidates[i][1]]))
+                                 for i in alike_spectra]) if handedness_of and alike_spectra else {})
     out = []
     for i, (row_a, row_b) in enumerate(candidates):
         shape, vibration = float(scores["shape"][i]), float(scores["vibration"][i])
+        id_a, id_b = int(index.ids_[row_a]), int(index.ids_[row_b])
+        hand = handedness.get((id_a, id_b))
         if shape >= INDISTINGUISHABLE and vibration <= RESOLVED:
-            direction, basis = disagreements.SHAPE_NOT_VIBRATION, "indistinguishable by shape"
-        elif vibration >= INDISTINGUISHABLE and shape <= RESOLVED:
-            direction, basis = disagreements.VIBRATION_NOT_SHAPE, "indistinguishable by vibration"
+            direction, basis, gap = disagreements.SHAPE_NOT_VIBRATION, "indistinguishable by shape", shape - vibration
+        elif vibration >= INDISTINGUISHABLE and hand is not None and hand < INDISTINGUISHABLE:
+            direction, basis, gap = (disagreements.VIBRATION_NOT_SHAPE, "indistinguishable by vibration, "
+                                     "told apart by handedness", vibration - hand)
+        elif vibration >= INDISTINGUISHABLE and hand is None and shape <= RESOLVED:
+            direction, basis, gap = disagreements.VIBRATION_NOT_SHAPE, "indistinguishable by vibration", vibration - shape
         else:
             continue
-        id_a, id_b = int(index.ids_[row_a]), int(index.ids_[row_b])
         value = observed(id_a, id_b) if observed else None
         alike, sides = disagreements.sides_with(direction, value, observed_alike=observed_alike,
                                                 observed_unalike=observed_unalike)
         structure = float(scores["structure"][i]) if "structure" in scores else None
         out.append((disagreements.Disagreement(
-            id_a=id_a, id_b=id_b, direction=direction, score=abs(shape - vibration), shape=shape,
+            id_a=id_a, id_b=id_b, direction=direction, score=abs(gap), shape=shape,
             vibration=vibration, structure=structure, shape_rank=None, vibration_rank=None, observed=value,
-            observed_alike=alike, sides_with=sides), basis))
+            observed_alike=alike, sides_with=sides, handedness=hand), basis))
     return out
+
+
+def handedness_scorer(catalogue, cat_index: CatalogueIndex):
+    """A callback [(id_a, id_b)] -> {(id_a, id_b): handedness} from the stored conformers."""
+    from library import computations
+    from library.search import metrics as metric_registry
+    from library.search.catalogue_index import record_stamps
+    from library.search.substitutes import OVERLAY_CONFORMERS, shape_arrays
+
+    metric = metric_registry.get("handedness")
+    engine_name = record_stamps(cat_index.vibration_engine)["shape"].engine_name
+
+    def score(pairs):
+        arrays = shape_arrays(catalogue, {i for pair in pairs for i in pair}, engine_name)
+        ensembles = {i: computations.ensemble_from_arrays(cat_index.materials[i].smiles, a,
+                                                          max_members=OVERLAY_CONFORMERS)
+                     for i, a in arrays.items()}
+        return {(a, b): metric.pair_similarity(ensembles[a], ensembles[b])
+                for a, b in pairs if a in ensembles and b in ensembles}
+
+    return score
 
 
 def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float = 0.9,
@@ -67,11 +102,14 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float = 0.9,
                            direction: str = "both", observation: str | None = DESCRIPTORS,
                            observed_alike: float = 0.5, observed_unalike: float = 0.2,
                            include_retired: bool = False, vibration_engine: str | None = None,
-                           cat_index: CatalogueIndex | None = None) -> tuple[list[DisagreementRow], str | None]:
+                           cat_index: CatalogueIndex | None = None,
+                           noise_rows: int = 20) -> tuple[list[DisagreementRow], str | None]:
     """Catalogue-wide pairs where shape and vibration disagree, with pair flags.
 
     First the telling pairs, which one metric cannot tell apart (similarity >= 0.999) while
-    the other can (<= 0.995), by gap; then the pairs past the user's thresholds, by gap.
+    the other can (<= 0.995; for mirror images the handedness metric, below 0.999), by gap; then
+    the pairs past the user's thresholds, by gap. The first `noise_rows` rows say whether their gap is
+    within conformer noise.
     """
     from library.catalogue import observations
 
@@ -90,7 +128,8 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float = 0.9,
     except ValueError as exc:
         raise SearchError(str(exc)) from None
     telling = telling_pairs(index, lists.values(), observed, observed_alike=observed_alike,
-                            observed_unalike=observed_unalike)
+                            observed_unalike=observed_unalike,
+                            handedness_of=handedness_scorer(catalogue, cat_index))
     telling = [(p, basis) for p, basis in telling if direction in ("both", p.direction)]
     telling_ids = {(min(p.id_a, p.id_b), max(p.id_a, p.id_b)) for p, _ in telling}
     ordered = sorted(telling, key=lambda item: -item[0].score)
@@ -102,4 +141,26 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float = 0.9,
     rows = [DisagreementRow(pair, cat_index.materials[pair.id_a], cat_index.materials[pair.id_b],
                             flags.get((min(pair.id_a, pair.id_b), max(pair.id_a, pair.id_b)), []), basis)
             for pair, basis in ordered]
+    _assess_noise(catalogue, cat_index, rows[:noise_rows])
     return rows, label
+
+
+NOISE_RESAMPLES = 24
+
+
+def _assess_noise(catalogue, cat_index: CatalogueIndex, rows: list[DisagreementRow]) -> None:
+    """Set each row's `within_noise` from the conformer-resampling spreads of its two scores."""
+    from library.search import uncertainty
+
+    if not rows:
+        return
+    resampled = uncertainty.load_resampled(catalogue, {i for r in rows for i in (r.pair.id_a, r.pair.id_b)},
+                                           cat_index.vibration_engine, resamples=NOISE_RESAMPLES)
+    for row in rows:
+        a, b = resampled.get(row.pair.id_a), resampled.get(row.pair.id_b)
+        if a is None or b is None:
+            continue
+        spreads = uncertainty.pair_spreads(a, b)
+        if row.pair.handedness is not None and row.pair.direction == disagreements.VIBRATION_NOT_SHAPE:
+            spreads["shape"] = 0.0  # the handedness gap: overlays are not resampled, judge by vibration
+        row.within_noise = uncertainty.within_noise(row.pair.score, spreads, ("shape", "vibration"))

@@ -57,6 +57,7 @@ class Disagreement:
     observed: float | None = None
     observed_alike: bool | None = None
     sides_with: str | None = None
+    handedness: float | None = None  # the handedness metric, when it was scored for the pair
 
 
 def jaccard(a, b) -> float:

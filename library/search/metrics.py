@@ -423,6 +423,29 @@ class OverlayMetric(Metric):
         return shape.overlay_similarity(ensemble_a, ensemble_b).shape_tanimoto
 
 
+@dataclass(frozen=True)
+class HandednessMetric(Metric):
+    """Scored on demand from stored conformers: how little the pair's handedness sets it apart.
+
+    With T the Gaussian shape Tanimoto of the best rotation-only overlay (J. Comput. Chem. 17, 1653
+    (1996)), ``handedness(A, B) = 1 - max(0, T(A, mirror B) - T(A, B))``: the overlap a pair gains
+    when one partner is reflected, the idea behind overlap-based chirality measures (J. Am. Chem.
+    Soc. 114, 6006 (1992), from memory). It is 1 when reflecting changes nothing and falls for
+    mirror-image pairs (T(A, mirror B) = 1 by construction, so the score is T(A, B)). When either
+    material is superposable on its own mirror image (achiral, meso, or stereo left open), the pair
+    and its reflected pair are the same pair, so the score is exactly 1: neutral, not noise.
+    """
+
+    def pair_similarity(self, ensemble_a, ensemble_b) -> float:
+        from library import conformers, shape
+
+        if any(conformers.superposable_on_mirror_image(e.members[0].mol) for e in (ensemble_a, ensemble_b)):
+            return 1.0
+        direct = shape.overlay_similarity(ensemble_a, ensemble_b).shape_tanimoto
+        mirrored = shape.overlay_similarity(ensemble_a, conformers.reflected(ensemble_b)).shape_tanimoto
+        return float(1.0 - max(0.0, mirrored - direct))
+
+
 # ---------------------------------------------------------------- registry
 
 _REGISTRY: dict[str, Metric] = {}
@@ -474,6 +497,9 @@ register(ShapeMetric(
 register(OverlayMetric(
     "overlay", "Gaussian shape Tanimoto of the best rotation-only overlay of the most populated conformers",
     records=("shape",), indexed=False))
+register(HandednessMetric(
+    "handedness", "1 - the overlay a pair gains when one partner is mirrored: below 1 only for pairs that "
+    "differ in handedness, 1 when either is achiral", records=("shape",), indexed=False))
 register(VibrationMetric(
     "vibration", "cosine of EVA fingerprints of the conformer-averaged harmonic spectra",
     features=("fingerprint",), records=("vibration",)))

@@ -10,10 +10,12 @@ from library.search.errors import SearchError
 DESCRIPTORS = "descriptors"
 
 
-def observed_similarity(catalogue, source: str | None):
+def observed_similarity(catalogue, source: str | None, *, include_demo: bool = False):
     """A callable (id_a, id_b) -> observed similarity or None, and a label saying what it is.
 
     source 'descriptors': Jaccard index of the two odor descriptor sets (None when either has none);
+    descriptors whose source is 'demo' (invented notes of demo entries) are not observations and are
+    left out unless `include_demo`;
     otherwise the name of an observation data set: Pearson correlation of the two profiles over
     the variables both were measured on (None with fewer than 3 shared variables).
     """
@@ -27,8 +29,10 @@ def observed_similarity(catalogue, source: str | None):
     if source == DESCRIPTORS:
         with catalogue.reading() as session:
             sets: dict[int, set[str]] = {}
-            for material_id, term in session.execute(
-                    select(MaterialOdor.material_id, OdorDescriptor.term).join(OdorDescriptor)):
+            query = select(MaterialOdor.material_id, OdorDescriptor.term).join(OdorDescriptor)
+            if not include_demo:
+                query = query.where(MaterialOdor.source_kind != "demo")
+            for material_id, term in session.execute(query):
                 sets.setdefault(material_id, set()).add(term)
 
         def jaccard(a, b):
@@ -36,7 +40,7 @@ def observed_similarity(catalogue, source: str | None):
                 return None
             return len(sets[a] & sets[b]) / len(sets[a] | sets[b])
 
-        return jaccard, "odor descriptor Jaccard"
+        return jaccard, "odor descriptor Jaccard" + (" (demo notes included)" if include_demo else "")
     with catalogue.reading() as session:
         try:
             ids, variables, matrix = observations.observation_profiles(session, source)

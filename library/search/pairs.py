@@ -3,13 +3,14 @@ Tanimoto and Tversky, volume ratio, matched and unmatched vibrational bands)."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from library.errors import Remedy
 from library.search import metrics as metric_registry
 from library.search.catalogue_index import CatalogueIndex, MaterialInfo, load_index, record_stamps
 from library.search.errors import SearchError
 from library.search.queries import QueryMaterial, resolve_query
+from library.search import uncertainty
 from library.search.substitutes import OVERLAY_CONFORMERS
 
 
@@ -31,17 +32,17 @@ def explain_pair(catalogue, query: QueryMaterial, other: MaterialInfo, cat_index
         query_shape = shape_loaded[query.material_id].arrays
         loaded = vibration_loaded[query.material_id]
         query_vibration = (loaded.arrays, loaded.summary)
-    overlay = shape.overlay_similarity(
-        computations.ensemble_from_arrays(query.smiles, query_shape, max_members=OVERLAY_CONFORMERS),
-        computations.ensemble_from_arrays(other.smiles, shape_loaded[other.id].arrays,
-                                          max_members=OVERLAY_CONFORMERS),
-        mode="tversky")
+    ensembles = (computations.ensemble_from_arrays(query.smiles, query_shape, max_members=OVERLAY_CONFORMERS),
+                 computations.ensemble_from_arrays(other.smiles, shape_loaded[other.id].arrays,
+                                                   max_members=OVERLAY_CONFORMERS))
+    overlay = shape.overlay_similarity(*ensembles, mode="tversky")
+    handedness = metric_registry.get("handedness").pair_similarity(*ensembles)
     other_vibration = vibration_loaded[other.id]
     bands = spectrum_module.match_bands(
         spectrum_module.VibrationSpectrum.from_arrays(*query_vibration),
-        spectrum_module.VibrationSpectrum.from_arrays(other_vibration.arrays, other_vibration.summary))
+        spectrum_module.VibrationSpectrum.from_arrays(other_vibration.arrays, other_vibration.summary), n=None)
     return {"overlay_tanimoto": overlay.shape_tanimoto, "overlay_tversky": overlay.tversky,
-            "volume_ratio": overlay.volume_ratio, "bands": bands}
+            "volume_ratio": overlay.volume_ratio, "handedness": handedness, "bands": bands}
 
 
 @dataclass
@@ -51,11 +52,16 @@ class Comparison:
     scores: dict[str, float]  # every metric, in registry order
     explanation: dict
     weight: float
+    # {metric: standard deviation over conformer resamples}; see library.search.uncertainty
+    spreads: dict[str, float] = field(default_factory=dict)
+    resamples: int = 0
 
 
 def compare(catalogue, key_a: str, key_b: str, *, weight: float = metric_registry.DEFAULT_WEIGHT,
-            vibration_engine: str | None = None, cat_index: CatalogueIndex | None = None) -> Comparison:
-    """Every metric's similarity of two catalogue materials, with the overlay and band explanation."""
+            vibration_engine: str | None = None, cat_index: CatalogueIndex | None = None,
+            resamples: int = uncertainty.RESAMPLES) -> Comparison:
+    """Every metric's similarity of two catalogue materials, with the overlay and band explanation and
+    each indexed score's spread over `resamples` conformer resamples (0: no spreads)."""
     if cat_index is None:
         cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
     query_a = resolve_query(catalogue, key_a, cat_index)
@@ -75,5 +81,12 @@ def compare(catalogue, key_a: str, key_b: str, *, weight: float = metric_registr
     explanation = explain_pair(catalogue, query_a, b_info, cat_index)
     measured = {name: float(values[0]) for name, values in pair.items()}
     measured["overlay"] = explanation["overlay_tanimoto"]
+    measured["handedness"] = explanation["handedness"]
     scores = {name: measured[name] for name in metric_registry.names() if name in measured}
-    return Comparison(cat_index.materials[query_a.material_id], b_info, scores, explanation, weight)
+    resampled = uncertainty.load_resampled(catalogue, [query_a.material_id, query_b.material_id],
+                                           cat_index.vibration_engine, resamples=resamples)
+    spreads = ({} if len(resampled) < 2 else
+               uncertainty.pair_spreads(resampled[query_a.material_id], resampled[query_b.material_id],
+                                        weight=weight))
+    return Comparison(cat_index.materials[query_a.material_id], b_info, scores, explanation, weight,
+                      spreads=spreads, resamples=resamples if spreads else 0)

@@ -3,7 +3,7 @@ shape searches and, on request, an explanation of each candidate."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -123,10 +123,11 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
                      weight: float = metric_registry.DEFAULT_WEIGHT, k: int = 10,
                      filters: SearchFilter | None = None, rerank_depth: int = DEFAULT_RERANK_DEPTH,
                      explain: bool = False, vibration_engine: str | None = None,
-                     cat_index: CatalogueIndex | None = None) -> SearchOutcome:
+                     cat_index: CatalogueIndex | None = None, include_demo: bool = False) -> SearchOutcome:
     """The k catalogue materials most similar to the query under `metric` (shape re-ranked by overlay).
 
     `query` is a key or structure text (resolved here) or an already resolved QueryMaterial.
+    Demo entries (invented odor notes) are left out unless `include_demo`.
     """
     from library.search.pairs import explain_pair
 
@@ -136,6 +137,9 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
     if not isinstance(query, QueryMaterial):
         query = resolve_query(catalogue, query, cat_index)
     filters = filters or build_filter()
+    demo_ids = {i for i, info in cat_index.materials.items() if info.demo}
+    if demo_ids and not include_demo:
+        filters = replace(filters, exclude_ids=filters.exclude_ids | demo_ids)
     rerank = (overlay_scorer(catalogue, cat_index, query, depth=rerank_depth)
               if metric == "shape" and rerank_depth > 0 else None)
     try:
@@ -147,6 +151,9 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
     except ValueError as exc:
         raise SearchError(str(exc)) from None
     notes = list(query.notes)
+    if demo_ids and not include_demo:
+        notes.append(f"{len(demo_ids)} demo entr{'y' if len(demo_ids) == 1 else 'ies'} with invented odor notes "
+                     "left out (include them with the demo switch)")
     if cat_index.unindexed:
         notes.append(f"{len(cat_index.unindexed)} material(s) without current records are not searched; "
                      "compute their records to include them")

@@ -495,6 +495,19 @@ class BandMatch:
     score: float
     tolerance_cm1: float
 
+    def to_dict(self) -> dict:
+        """JSON-ready: positions in cm^-1 (0.1 cm^-1), matched as [a, b], and the diagnostic group
+        labels of the bands that have one ({"a": {position: label}, "b": {...}})."""
+        def labels(bands):
+            return {f"{b.position_cm1:.1f}": b.label for b in bands if b.label}
+        bands_a = [a for a, _ in self.pairs] + list(self.unmatched_a)
+        bands_b = [b for _, b in self.pairs] + list(self.unmatched_b)
+        return {"tolerance_cm1": self.tolerance_cm1, "score": round(self.score, 6),
+                "matched": [[round(a.position_cm1, 1), round(b.position_cm1, 1)] for a, b in self.pairs],
+                "only_a": [round(a.position_cm1, 1) for a in self.unmatched_a],
+                "only_b": [round(b.position_cm1, 1) for b in self.unmatched_b],
+                "groups": {"a": labels(bands_a), "b": labels(bands_b)}}
+
 
 def match_bands(spec_a: VibrationSpectrum, spec_b: VibrationSpectrum, *, tolerance_cm1: float = 15.0,
                 n: int | None = 12, sigma_cm1: float = 10.0, intensity_weighting: str = "auto",

@@ -12,6 +12,7 @@ import pytest
 from werkzeug.serving import make_server
 
 from library.catalogue import observations
+from library.search import metrics
 from library.catalogue.database import Catalogue
 from webui import create_app
 
@@ -71,7 +72,7 @@ def test_find_substitutes_by_type_ahead_then_compare(curator_page, expect, scree
     expect(rows).to_have_count(10)
     expect(page.locator("#results h2")).to_contain_text("for Citral by blend (shape weight 0.70)")
     first = rows.first
-    expect(first.locator("td.score")).to_have_count(4)
+    expect(first.locator("td.score")).to_have_count(len(metrics.names(indexed=True)))
     assert 0.0 <= float(first.locator("td.score.ranked-by").inner_text().split()[0]) <= 1.0
     expect(first.locator("svg.preview")).to_be_visible()
     expect(page.locator("aside.caution")).to_contain_text("IFRA Standards")
@@ -129,7 +130,7 @@ def test_scorecard_runs_and_draws(curator_page, expect, screenshot):
     page.fill("#permutations", "49")
     page.fill("#resamples", "50")
     page.click("button:has-text('Run scorecard')")
-    expect(page.locator("table.scorecard-table tbody tr")).to_have_count(4)
+    expect(page.locator("table.scorecard-table tbody tr")).to_have_count(len(metrics.names(indexed=True)))
     expect(page.locator("svg.scorecard")).to_be_visible()
     expect(page.locator("#results h2")).to_contain_text("odor descriptor Jaccard")
     screenshot(page, "scorecard")
