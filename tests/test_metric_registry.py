@@ -31,7 +31,8 @@ def with_plain_usr(monkeypatch):
 
 
 def test_registered_metrics_and_their_definitions():
-    assert metrics.names() == ("shape", "overlay", "vibration", "vibration-ir", "vibration-window", "blend", "structure")
+    assert metrics.names() == ("shape", "overlay", "handedness", "vibration", "vibration-ir", "vibration-window",
+                               "blend", "structure")
     assert metrics.names(indexed=True) == ("shape", "vibration", "vibration-ir", "vibration-window", "blend", "structure")
     assert all(m.description for m in metrics.metrics())
     # the USR formula of J. Comput. Chem. 28, 1711 (2007): S = 1 / (1 + mean |a - b|)
@@ -68,3 +69,31 @@ def test_a_new_metric_reaches_every_consumer(with_plain_usr):
 
 def reference_pair(shape, a, b):
     return 1.0 / (1.0 + np.abs(shape[a, :12].astype(np.float64) - shape[b, :12]).mean())
+
+
+# Structures from PubChem isomeric SMILES (from memory): (R)- and (S)-carvone, (+)/(-)-camphor,
+# an achiral pair (acetophenone, propiophenone).
+CARVONE_R = "CC1=CC[C@@H](CC1=O)C(C)=C"
+CARVONE_S = "CC1=CC[C@H](CC1=O)C(C)=C"
+CAMPHOR_PLUS = "C[C@@]12CC[C@@H](C1(C)C)CC2=O"
+CAMPHOR_MINUS = "C[C@]12CC[C@H](C1(C)C)CC2=O"
+
+
+@pytest.mark.parametrize("hand_a, hand_b", [(CARVONE_R, CARVONE_S), (CAMPHOR_PLUS, CAMPHOR_MINUS)])
+def test_handedness_tells_mirror_images_apart_and_is_neutral_otherwise(hand_a, hand_b):
+    from library import conformers
+
+    handedness = metrics.get("handedness")
+    a, b = conformers.ensemble(hand_a), conformers.ensemble(hand_b)
+    # a mirror image built by olibra is the partner's conformers reflected: the score is the
+    # rotation-only overlay of the two hands, below 1 because no rotation superposes them
+    score = handedness.pair_similarity(a, b)
+    assert score < 0.999
+    # the reflected ensemble of a material is its mirror image too
+    assert handedness.pair_similarity(a, conformers.reflected(a)) < 0.999
+    # a material and itself: reflecting the partner can only lose overlap, never gain
+    assert handedness.pair_similarity(a, a) == pytest.approx(1.0, abs=1e-6)
+    # achiral partners (a material superposable on its mirror image): neutral, exactly 1
+    achiral = conformers.ensemble("CC(=O)c1ccccc1")
+    assert handedness.pair_similarity(a, achiral) == 1.0
+    assert handedness.pair_similarity(conformers.ensemble("CCC(=O)c1ccccc1"), achiral) == 1.0
