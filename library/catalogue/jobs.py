@@ -82,7 +82,7 @@ def _worker_setup(parent_pid: int | None = None) -> None:
     threading.Thread(target=watch, name="olibra-parent-watch", daemon=True).start()
 
 
-def _guarded(worker: Callable[[str], WorkerResult], smiles: str):
+def guarded(worker: Callable[[str], WorkerResult], smiles: str):
     """Run the worker, turning a refusal (ValueError) into a message instead of an exception."""
     started = time.perf_counter()
     try:
@@ -114,22 +114,35 @@ def select_materials(catalogue: Catalogue, stamps: list[EngineStamp], *, which: 
     return [tuple(r) for r in rows]
 
 
-def _store(catalogue: Catalogue, material_id: int, smiles: str, stamps: list[EngineStamp],
-           result: WorkerResult, elapsed_s: float) -> bool:
+def store_batch(catalogue: Catalogue, stamps: list[EngineStamp],
+                items: list[tuple[int, str, WorkerResult, float]]) -> int:
+    """Store finished materials, (id, smiles, result, seconds) each, in one short transaction: every
+    record of a material or none. A material deleted or edited while it was computed is left for the
+    next run. Returns how many materials were stored."""
+    stored = 0
     with catalogue.transaction() as session:
-        material = session.get(Material, material_id)
-        if material is None or material.smiles != smiles:
-            return False  # deleted or edited while we computed: leave it for the next run
-        for stamp in stamps:
-            arrays, summary = result[stamp.kind]
-            save_record(session, material, stamp, arrays, summary, elapsed_s=elapsed_s)
-    return True
+        for material_id, smiles, result, elapsed_s in items:
+            material = session.get(Material, material_id)
+            if material is None or material.smiles != smiles:
+                continue
+            for stamp in stamps:
+                arrays, summary = result[stamp.kind]
+                save_record(session, material, stamp, arrays, summary, elapsed_s=elapsed_s)
+            stored += 1
+    return stored
 
 
 def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str], WorkerResult],
         materials: list[tuple[int, str, str]], *, processes: int | None = None,
-        progress: Callable[[int], None] | None = None) -> JobReport:
-    """Compute `worker(smiles)` for each material in worker processes and store the records."""
+        progress: Callable[[int], None] | None = None, cluster: str | None = None) -> JobReport:
+    """Compute `worker(smiles)` for each material in worker processes and store the records.
+
+    With `cluster` (a Dask scheduler address such as tcp://host:8786, or local:N), the materials are
+    computed on that Dask cluster instead (`library.catalogue.cluster`)."""
+    if cluster:
+        from library.catalogue import cluster as cluster_jobs
+
+        return cluster_jobs.run(catalogue, stamps, worker, materials, address=cluster, progress=progress)
     report = JobReport(planned=len(materials))
     started = time.perf_counter()
     if not materials:
@@ -144,7 +157,7 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
         while queue or pending:
             while queue and len(pending) < 2 * processes:
                 item = queue.popleft()
-                pending[executor.submit(_guarded, worker, item[2])] = item
+                pending[executor.submit(guarded, worker, item[2])] = item
             finished, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in finished:
                 material_id, name, smiles = pending.pop(future)
@@ -157,8 +170,8 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                         "by retiring it") from None
                 if error is not None:
                     report.failures.append((material_id, name, error))
-                elif _store(catalogue, material_id, smiles, stamps, result, elapsed):
-                    report.done += 1
+                else:
+                    report.done += store_batch(catalogue, stamps, [(material_id, smiles, result, elapsed)])
                 if progress:
                     progress(1)
     except KeyboardInterrupt:
