@@ -183,3 +183,28 @@ def test_a_worker_killed_mid_run_leaves_every_material_computed_once(catalogue_u
     stamps = computations.stamps(computations.Plan())
     assert jobs.select_materials(catalogue, stamps) == []
     catalogue.dispose()
+
+
+@pytest.mark.slow
+def test_ctrl_c_on_the_coordinator_keeps_whole_records_and_a_rerun_resumes(tmp_path):
+    count = 16
+    url = f"sqlite:///{tmp_path / 'interrupted.sqlite'}"
+    catalogue = seed_catalogue(url, count)
+    command = [sys.executable, "-m", "library.cli", "--db", url, "compute", "all", "--cluster", "local:2", "--quiet"]
+    coordinator = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                                   env=dict(os.environ, PYTHONUNBUFFERED="1"))
+    deadline = time.monotonic() + 300
+    while record_counts(catalogue)[0] < 2 and coordinator.poll() is None and time.monotonic() < deadline:
+        time.sleep(0.1)
+    coordinator.send_signal(signal.SIGINT)
+    out, err = coordinator.communicate(timeout=120)
+    assert coordinator.returncode == 130, (out, err)
+    assert "interrupted" in out and "Traceback" not in err
+    records, _, per_kind = record_counts(catalogue)
+    assert 2 <= records < 2 * count and records % 2 == 0  # whole materials: both records or none
+    assert all(len(sizes) == 1 for sizes in per_kind.values())  # every stored record is whole
+    again = subprocess.run(command, capture_output=True, text=True, timeout=600)
+    assert again.returncode == 0, again.stderr
+    assert f"{count - records // 2} of {count - records // 2} material(s) computed" in again.stdout
+    assert record_counts(catalogue)[0] == 2 * count
+    catalogue.dispose()

@@ -95,6 +95,7 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
     started = time.perf_counter()
     with connect(address) as client:
         client.run(_single_threaded_worker)
+        report.setup_s = time.perf_counter() - started
         threads = max(1, sum(client.nthreads().values()))
         window = TASKS_PER_WORKER_THREAD * threads
         queue = list(reversed(materials))
@@ -115,7 +116,9 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
         def write() -> None:
             nonlocal batch, last_write
             if batch:
+                write_started = time.perf_counter()
                 report.done += store_batch(catalogue, stamps, batch)
+                report.write_s += time.perf_counter() - write_started
                 if progress:
                     progress(len(batch))
                 batch = []

@@ -37,6 +37,8 @@ class JobReport:
     done: int = 0
     failures: list[tuple[int, str, str]] = field(default_factory=list)  # (material id, name, reason)
     elapsed_s: float = 0.0
+    write_s: float = 0.0  # wall time the parent spent storing records
+    setup_s: float = 0.0  # of elapsed_s: connecting to a cluster (or starting a local one)
     interrupted: bool = False
 
     @property
@@ -171,7 +173,9 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                 if error is not None:
                     report.failures.append((material_id, name, error))
                 else:
+                    write_started = time.perf_counter()
                     report.done += store_batch(catalogue, stamps, [(material_id, smiles, result, elapsed)])
+                    report.write_s += time.perf_counter() - write_started
                 if progress:
                     progress(1)
     except KeyboardInterrupt:
