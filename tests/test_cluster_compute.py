@@ -18,7 +18,7 @@ import pytest
 from sqlalchemy import func, select
 
 from library import computations
-from catalogue_helpers import draft
+from catalogue_helpers import draft, interrupt_compute
 from library.catalogue import curation, jobs, transfer
 from library.catalogue.cluster import parse_address
 from library.catalogue.database import initialize
@@ -28,7 +28,6 @@ from library.errors import OlibraError
 from library.seed_catalog import MATERIALS_FILE
 
 pytest.importorskip("distributed", reason="the cluster extra (dask.distributed) is not installed")
-import psutil  # noqa: E402 - a dependency of dask.distributed
 
 
 def seed_catalogue(url, count):
@@ -163,9 +162,8 @@ def test_a_worker_killed_mid_run_leaves_every_material_computed_once(catalogue_u
             time.sleep(0.05)
         assert coordinator.poll() is None, coordinator.communicate()
         # the worker process of the first `dask worker` command (the command may run it as a child)
-        pids = watcher.run(os.getpid)
-        victim_address, victim_pid = next((a, pid) for a, pid in pids.items()
-                                          if victim.pid in (pid, psutil.Process(pid).ppid()))
+        pids = watcher.run(lambda: (os.getpid(), os.getppid()))
+        victim_address, victim_pid = next((a, pid) for a, (pid, parent) in pids.items() if victim.pid in (pid, parent))
         assert any(str(t).startswith("olibra-material") for t in watcher.processing()[victim_address])
         os.kill(victim_pid, signal.SIGKILL)
         deadline = time.monotonic() + 60
@@ -190,16 +188,7 @@ def test_ctrl_c_on_the_coordinator_keeps_whole_records_and_a_rerun_resumes(tmp_p
     count = 16
     url = f"sqlite:///{tmp_path / 'interrupted.sqlite'}"
     catalogue = seed_catalogue(url, count)
-    command = [sys.executable, "-m", "library.cli", "--db", url, "compute", "all", "--cluster", "local:2", "--quiet"]
-    coordinator = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                                   env=dict(os.environ, PYTHONUNBUFFERED="1"))
-    deadline = time.monotonic() + 300
-    while record_counts(catalogue)[0] < 2 and coordinator.poll() is None and time.monotonic() < deadline:
-        time.sleep(0.1)
-    coordinator.send_signal(signal.SIGINT)
-    out, err = coordinator.communicate(timeout=120)
-    assert coordinator.returncode == 130, (out, err)
-    assert "interrupted" in out and "Traceback" not in err
+    command = interrupt_compute(url, ["--cluster", "local:2"], lambda: record_counts(catalogue)[0], 2)
     records, _, per_kind = record_counts(catalogue)
     assert 2 <= records < 2 * count and records % 2 == 0  # whole materials: both records or none
     assert all(len(sizes) == 1 for sizes in per_kind.values())  # every stored record is whole
