@@ -197,3 +197,24 @@ def test_ctrl_c_on_the_coordinator_keeps_whole_records_and_a_rerun_resumes(tmp_p
     assert f"{count - records // 2} of {count - records // 2} material(s) computed" in again.stdout
     assert record_counts(catalogue)[0] == 2 * count
     catalogue.dispose()
+
+
+@pytest.mark.slow
+def test_two_coordinators_computing_one_catalogue_at_once_write_each_record_once(catalogue_url,
+                                                                             dask_scheduler_and_workers):
+    address, _ = dask_scheduler_and_workers
+    count = 12
+    catalogue = seed_catalogue(catalogue_url, count)
+    # both compute the missing records of the whole catalogue at once, on one cluster
+    coordinators = [subprocess.Popen([sys.executable, "-m", "library.cli", "--db", catalogue_url, "compute", "all",
+                                      "--cluster", address, "--quiet"], stdout=subprocess.PIPE,
+                                     stderr=subprocess.PIPE, text=True) for _ in range(2)]
+    outputs = [process.communicate(timeout=600) for process in coordinators]
+    for process, (out, err) in zip(coordinators, outputs):
+        assert process.returncode == 0 and "Traceback" not in err, (out, err)
+    stored_by_each = [int(out.split(" of ")[0].split()[-1]) for out, _ in outputs]
+    assert sum(stored_by_each) == count  # each material is stored by one of the two
+    records, highest, per_kind = record_counts(catalogue)
+    assert records == highest == 2 * count  # one record per material and kind, none replaced
+    assert all(len(sizes) == 1 for sizes in per_kind.values())
+    catalogue.dispose()

@@ -102,7 +102,8 @@ def _run(catalogue, bookkeeping, job_id, plan, stamps, materials, processes, clu
     try:
         _update(bookkeeping, job_id, state="running", started_at=utc_now())
         report = jobs.run(catalogue, stamps, computations.worker(plan), materials,
-                          processes=processes, progress=progress, cluster=cluster)
+                          processes=processes, progress=progress, cluster=cluster,
+                          keep_current=True)
     except OlibraError as exc:  # e.g. the configured Dask scheduler does not answer
         _update(bookkeeping, job_id, state="failed", finished_at=utc_now(), message=str(exc))
         return

@@ -86,8 +86,9 @@ def connect(address: str) -> Iterator:
 def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str], WorkerResult],
         materials: list[tuple[int, str, str]], *, address: str,
         progress: Callable[[int], None] | None = None, batch_size: int = BATCH_SIZE,
-        batch_seconds: float = BATCH_SECONDS) -> JobReport:
-    """Compute `worker(smiles)` for each material on the Dask cluster at `address` and store the records."""
+        batch_seconds: float = BATCH_SECONDS, keep_current: bool = False) -> JobReport:
+    """Compute `worker(smiles)` for each material on the Dask cluster at `address` and store the records
+    (`keep_current`: see `jobs.store_batch`)."""
     report = JobReport(planned=len(materials))
     if not materials:
         return report
@@ -117,7 +118,7 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
             nonlocal batch, last_write
             if batch:
                 write_started = time.perf_counter()
-                report.done += store_batch(catalogue, stamps, batch)
+                report.done += store_batch(catalogue, stamps, batch, keep_current=keep_current)
                 report.write_s += time.perf_counter() - write_started
                 if progress:
                     progress(len(batch))

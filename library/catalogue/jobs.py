@@ -23,8 +23,8 @@ from sqlalchemy import select
 
 from library.catalogue.curation import find_material
 from library.catalogue.database import Catalogue
-from library.catalogue.models import Material
-from library.catalogue.records import EngineStamp, record_state, save_record
+from library.catalogue.models import ComputedRecord, Material
+from library.catalogue.records import EngineStamp, is_current, record_state, save_record
 from library.errors import OlibraError
 
 # Worker result: for each kind, (arrays, summary); or an error message.
@@ -117,15 +117,21 @@ def select_materials(catalogue: Catalogue, stamps: list[EngineStamp], *, which: 
 
 
 def store_batch(catalogue: Catalogue, stamps: list[EngineStamp],
-                items: list[tuple[int, str, WorkerResult, float]]) -> int:
+                items: list[tuple[int, str, WorkerResult, float]], *, keep_current: bool = False) -> int:
     """Store finished materials, (id, smiles, result, seconds) each, in one short transaction: every
     record of a material or none. A material deleted or edited while it was computed is left for the
-    next run. Returns how many materials were stored."""
+    next run. Each material's row is locked first (FOR UPDATE on PostgreSQL; SQLite's write transaction
+    holds the whole file), so two coordinators storing one material take turns. With `keep_current`
+    (a run over the missing and stale records), a material whose records are current by now (another
+    coordinator stored them meanwhile) is left as it is: it is written once. Returns how many materials
+    were stored."""
     stored = 0
     with catalogue.transaction() as session:
         for material_id, smiles, result, elapsed_s in items:
-            material = session.get(Material, material_id)
+            material = session.get(Material, material_id, with_for_update=True)
             if material is None or material.smiles != smiles:
+                continue
+            if keep_current and _all_current(session, material, stamps):
                 continue
             for stamp in stamps:
                 arrays, summary = result[stamp.kind]
@@ -134,17 +140,26 @@ def store_batch(catalogue: Catalogue, stamps: list[EngineStamp],
     return stored
 
 
+def _all_current(session, material: Material, stamps: list[EngineStamp]) -> bool:
+    found = {(r.kind, r.engine_name): r for r in session.scalars(select(ComputedRecord).where(
+        ComputedRecord.material_id == material.id))}
+    return all(is_current(found.get((s.kind, s.engine_name)), s, material.inchikey) for s in stamps)
+
+
 def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str], WorkerResult],
         materials: list[tuple[int, str, str]], *, processes: int | None = None,
-        progress: Callable[[int], None] | None = None, cluster: str | None = None) -> JobReport:
+        progress: Callable[[int], None] | None = None, cluster: str | None = None,
+        keep_current: bool = False) -> JobReport:
     """Compute `worker(smiles)` for each material in worker processes and store the records.
 
     With `cluster` (a Dask scheduler address such as tcp://host:8786, or local:N), the materials are
-    computed on that Dask cluster instead (`library.catalogue.cluster`)."""
+    computed on that Dask cluster instead (`library.catalogue.cluster`). `keep_current`: the materials
+    were chosen as missing or stale, so one another writer made current meanwhile is not written again."""
     if cluster:
         from library.catalogue import cluster as cluster_jobs
 
-        return cluster_jobs.run(catalogue, stamps, worker, materials, address=cluster, progress=progress)
+        return cluster_jobs.run(catalogue, stamps, worker, materials, address=cluster, progress=progress,
+                                keep_current=keep_current)
     report = JobReport(planned=len(materials))
     started = time.perf_counter()
     if not materials:
@@ -174,7 +189,8 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                     report.failures.append((material_id, name, error))
                 else:
                     write_started = time.perf_counter()
-                    report.done += store_batch(catalogue, stamps, [(material_id, smiles, result, elapsed)])
+                    report.done += store_batch(catalogue, stamps, [(material_id, smiles, result, elapsed)],
+                                               keep_current=keep_current)
                     report.write_s += time.perf_counter() - write_started
                 if progress:
                     progress(1)

@@ -32,7 +32,7 @@ def cmd_compute(args) -> int:
                       enabled=not args.quiet) as bar:
         report = jobs.run(catalogue, stamps, computations.worker(plan), materials,
                           processes=args.processes, progress=bar.update,
-                          cluster=args.cluster)
+                          cluster=args.cluster, keep_current=not (args.all or args.materials))
     for material_id, name, reason in report.failures:
         print(f"failed: #{material_id} {name}: {reason}")
     print(report.summary())
