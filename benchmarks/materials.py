@@ -34,10 +34,11 @@ def header(what: str, processes: int | None) -> str:
 
 
 def runner_throughput(plan, names: list[str], *, processes: int | None = None, say=print,
-                      label: str = "") -> dict:
+                      label: str = "", cluster: str | None = None) -> dict:
     """Materials per second of `olibra compute` as users run it (library.catalogue.jobs.run with the
-    worker processes, writing each material's records) for the seed materials `names`, in a scratch
-    SQLite catalogue; per-material compute seconds come from the stored records."""
+    worker processes, or on the Dask cluster `cluster`, writing each material's records) for the seed
+    materials `names`, in a scratch SQLite catalogue; per-material compute seconds come from the stored
+    records, the parent's write rate (materials per second of storing) from the job report."""
     from sqlalchemy import select
 
     from library import computations
@@ -57,7 +58,8 @@ def runner_throughput(plan, names: list[str], *, processes: int | None = None, s
             stamps = computations.stamps(plan)
             chosen = [m for m in jobs.select_materials(catalogue, stamps, which="all") if m[1] in wanted]
             started = time.perf_counter()
-            report = jobs.run(catalogue, stamps, computations.worker(plan), chosen, processes=processes)
+            report = jobs.run(catalogue, stamps, computations.worker(plan), chosen, processes=processes,
+                              cluster=cluster)
             wall = time.perf_counter() - started
             with catalogue.reading() as session:
                 per_material = [float(s) for s in session.scalars(select(ComputedRecord.elapsed_s).where(
@@ -66,10 +68,19 @@ def runner_throughput(plan, names: list[str], *, processes: int | None = None, s
             catalogue.dispose()
     figures = {"materials": report.done, "failed": len(report.failures), "wall_s": wall,
                "materials_per_s": report.done / wall if wall > 0 else float("nan"),
-               "compute_s_per_material": sum(per_material) / len(per_material) if per_material else float("nan")}
+               "compute_s_per_material": sum(per_material) / len(per_material) if per_material else float("nan"),
+               "write_materials_per_s": report.done / report.write_s if report.write_s > 0 else float("nan"),
+               "setup_s": report.setup_s}
+    if cluster:  # the rate once the cluster is up (starting a LocalCluster takes seconds)
+        running = wall - report.setup_s
+        figures["materials_per_s"] = report.done / running if running > 0 else float("nan")
+    where = f"on the Dask cluster {cluster}" if cluster else f"on {processes or os.cpu_count()} processes"
+    if cluster:
+        where += f" (of which {report.setup_s:.2f} s connecting or starting it, left out of the rate)"
     say(f"{label}{report.done} materials ({len(report.failures)} failed) through the job runner in {wall:.2f} s "
-        f"on {processes or os.cpu_count()} processes: {figures['materials_per_s']:.2f} materials/s; "
-        f"compute time per material in the workers {figures['compute_s_per_material'] * 1000:.0f} ms")
+        f"{where}: {figures['materials_per_s']:.2f} materials/s; "
+        f"compute time per material in the workers {figures['compute_s_per_material'] * 1000:.0f} ms; "
+        f"the parent wrote {figures['write_materials_per_s']:.0f} materials/s")
     for material_id, name, reason in report.failures[:5]:
         say(f"    failed #{material_id} {name}: {reason}")
     return figures

@@ -5,7 +5,7 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 python3 -m venv .venv
 .venv/bin/python -m pip install -q --upgrade pip
-.venv/bin/python -m pip install -q -e ".[test,postgres,xtb]"
+.venv/bin/python -m pip install -q -e ".[test,postgres,xtb,cluster]"
 status=0
 .venv/bin/python -m pytest "$@" || status=$?
 if [ "$status" -eq 5 ]; then

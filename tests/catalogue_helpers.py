@@ -47,3 +47,25 @@ def fresh_postgres_url() -> str:
     finally:
         engine.dispose()
     return url
+
+
+def interrupt_compute(url, extra_arguments, stored_records, at_least):
+    """Run `olibra --db URL compute all --quiet EXTRA...`, press Ctrl-C (SIGINT) once `stored_records()`
+    reaches `at_least` (or after 300 s), and check that the command ended as interrupted, without a
+    traceback. Returns the command line, for a rerun."""
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    command = [sys.executable, "-m", "library.cli", "--db", url, "compute", "all", "--quiet", *extra_arguments]
+    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                               env=dict(os.environ, PYTHONUNBUFFERED="1"))
+    deadline = time.monotonic() + 300
+    while stored_records() < at_least and process.poll() is None and time.monotonic() < deadline:
+        time.sleep(0.1)
+    process.send_signal(signal.SIGINT)
+    out, err = process.communicate(timeout=120)
+    assert process.returncode == 130, (out, err)
+    assert "interrupted" in out and "Traceback" not in err
+    return command

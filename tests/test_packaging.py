@@ -26,7 +26,7 @@ ROOT = Path(__file__).resolve().parents[1]
 PYPROJECT = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))
 FIRST_PARTY = {"library", "webui", "benchmarks"}
 # Imported only where their absence is handled with a clear message: module -> (extra, distribution).
-OPTIONAL = {"tblite": ("xtb", "tblite"), "ase": ("test", "ase")}
+OPTIONAL = {"tblite": ("xtb", "tblite"), "ase": ("test", "ase"), "distributed": ("cluster", "distributed")}
 
 
 def _normalized(name: str) -> str:

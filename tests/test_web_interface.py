@@ -430,14 +430,18 @@ def wait_for_job(client, job_id: int, *, limit_s: float = 180.0) -> dict:
         time.sleep(0.3)
 
 
-@on_both_backends
-def test_recompute_job_runs_in_the_background_and_its_progress_is_stored(client, catalogue):
-    keep = {"Octanal", "Citral"}
+def keep_only_octanal_and_citral(catalogue, client):
+    """Retire every material but Octanal and Citral (a two-material recompute); sign in as cora."""
     with catalogue.transaction() as session:
         for material in session.scalars(select(Material)):
-            if material.preferred_name not in keep:
+            if material.preferred_name not in {"Octanal", "Citral"}:
                 curation.set_status(session, material, "retired", actor="test")
-    token = sign_in(client, "cora")
+    return sign_in(client, "cora")
+
+
+@on_both_backends
+def test_recompute_job_runs_in_the_background_and_its_progress_is_stored(client, catalogue):
+    token = keep_only_octanal_and_citral(catalogue, client)
     response = client.post("/jobs/recompute", data={"csrf_token": token, "kinds": "shape", "engine": "mmff"})
     assert response.status_code == 302 and re.match(r"^/jobs/\d+$", response.headers["Location"])
     job_id = int(response.headers["Location"].rsplit("/", 1)[1])
@@ -452,6 +456,21 @@ def test_recompute_job_runs_in_the_background_and_its_progress_is_stored(client,
     again = client.post("/jobs/recompute", data={"csrf_token": token, "kinds": "shape", "engine": "mmff"})
     follow = client.get(again.headers["Location"])
     assert "nothing to compute: every record is current" in follow.text
+
+
+def test_a_recompute_job_runs_on_the_dask_cluster_the_server_is_configured_with(app, client, catalogue):
+    pytest.importorskip("distributed", reason="the cluster extra (dask.distributed) is not installed")
+    token = keep_only_octanal_and_citral(catalogue, client)
+    app.config["OLIBRA_JOB_CLUSTER"] = "local:x"  # a mistyped address: the job page says what to write
+    response = client.post("/jobs/recompute", data={"csrf_token": token, "kinds": "shape", "engine": "mmff"})
+    job = wait_for_job(client, int(response.headers["Location"].rsplit("/", 1)[1]))
+    assert job["state"] == "failed" and "local:N" in job["message"], job
+    app.config["OLIBRA_JOB_CLUSTER"] = "local:1"
+    response = client.post("/jobs/recompute", data={"csrf_token": token, "kinds": "shape", "engine": "mmff"})
+    job = wait_for_job(client, int(response.headers["Location"].rsplit("/", 1)[1]))
+    assert job["state"] == "finished" and (job["total"], job["done"], job["failed"]) == (2, 2, 0), job
+    octanal = client.get(f"/materials/{material_id(catalogue, 'Octanal')}").text
+    assert "NPR1" in octanal and "tag-current" in octanal
 
 
 def test_only_one_recompute_at_a_time_and_abandoned_jobs_are_marked(app, client, catalogue):

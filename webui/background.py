@@ -49,7 +49,8 @@ def active_job(session: Session) -> BackgroundJob | None:
 
 
 def start_recompute(catalogue: Catalogue, bookkeeping: sessionmaker[Session], *, kinds: str,
-                    engine: str, actor: str, processes: int | None = None) -> int:
+                    engine: str, actor: str, processes: int | None = None,
+                    cluster: str | None = None) -> int:
     """Start recomputing the missing or stale records of every active material; returns the job id."""
     plan = recompute_plan(kinds, engine)
     try:
@@ -78,7 +79,8 @@ def start_recompute(catalogue: Catalogue, bookkeeping: sessionmaker[Session], *,
         if materials:
             # Started inside the lock so that a second request sees this job as active.
             thread = threading.Thread(target=_run, name=f"olibra-job-{job_id}", daemon=True,
-                                      args=(catalogue, bookkeeping, job_id, plan, stamps, materials, processes))
+                                      args=(catalogue, bookkeeping, job_id, plan, stamps, materials, processes,
+                                            cluster))
     if materials:
         thread.start()
     return job_id
@@ -89,7 +91,7 @@ def _update(bookkeeping: sessionmaker[Session], job_id: int, **values) -> None:
         session.execute(update(BackgroundJob).where(BackgroundJob.id == job_id).values(**values))
 
 
-def _run(catalogue, bookkeeping, job_id, plan, stamps, materials, processes) -> None:
+def _run(catalogue, bookkeeping, job_id, plan, stamps, materials, processes, cluster) -> None:
     processed = 0
 
     def progress(step: int) -> None:
@@ -100,7 +102,11 @@ def _run(catalogue, bookkeeping, job_id, plan, stamps, materials, processes) -> 
     try:
         _update(bookkeeping, job_id, state="running", started_at=utc_now())
         report = jobs.run(catalogue, stamps, computations.worker(plan), materials,
-                          processes=processes, progress=progress)
+                          processes=processes, progress=progress, cluster=cluster,
+                          keep_current=True)
+    except OlibraError as exc:  # e.g. the configured Dask scheduler does not answer
+        _update(bookkeeping, job_id, state="failed", finished_at=utc_now(), message=str(exc))
+        return
     except Exception as exc:  # a bug or a crashed pool: say so on the job page, keep the server up
         log.exception("background job %s failed", job_id)
         _update(bookkeeping, job_id, state="failed", finished_at=utc_now(),

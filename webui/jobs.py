@@ -31,7 +31,8 @@ def start(kinds: str, engine: str) -> int:
     state = web_state()
     return background.start_recompute(state.catalogue, state.bookkeeping, kinds=kinds, engine=engine,
                                       actor=current_user.username,
-                                      processes=current_app.config.get("OLIBRA_JOB_PROCESSES"))
+                                      processes=current_app.config.get("OLIBRA_JOB_PROCESSES"),
+                                      cluster=current_app.config.get("OLIBRA_JOB_CLUSTER"))
 
 
 @blueprint.get("/jobs")

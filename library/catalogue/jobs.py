@@ -23,8 +23,8 @@ from sqlalchemy import select
 
 from library.catalogue.curation import find_material
 from library.catalogue.database import Catalogue
-from library.catalogue.models import Material
-from library.catalogue.records import EngineStamp, record_state, save_record
+from library.catalogue.models import ComputedRecord, Material
+from library.catalogue.records import EngineStamp, is_current, record_state, save_record
 from library.errors import OlibraError
 
 # Worker result: for each kind, (arrays, summary); or an error message.
@@ -37,6 +37,8 @@ class JobReport:
     done: int = 0
     failures: list[tuple[int, str, str]] = field(default_factory=list)  # (material id, name, reason)
     elapsed_s: float = 0.0
+    write_s: float = 0.0  # wall time the parent spent storing records
+    setup_s: float = 0.0  # of elapsed_s: connecting to a cluster (or starting a local one)
     interrupted: bool = False
 
     @property
@@ -82,7 +84,7 @@ def _worker_setup(parent_pid: int | None = None) -> None:
     threading.Thread(target=watch, name="olibra-parent-watch", daemon=True).start()
 
 
-def _guarded(worker: Callable[[str], WorkerResult], smiles: str):
+def guarded(worker: Callable[[str], WorkerResult], smiles: str):
     """Run the worker, turning a refusal (ValueError) into a message instead of an exception."""
     started = time.perf_counter()
     try:
@@ -114,22 +116,50 @@ def select_materials(catalogue: Catalogue, stamps: list[EngineStamp], *, which: 
     return [tuple(r) for r in rows]
 
 
-def _store(catalogue: Catalogue, material_id: int, smiles: str, stamps: list[EngineStamp],
-           result: WorkerResult, elapsed_s: float) -> bool:
+def store_batch(catalogue: Catalogue, stamps: list[EngineStamp],
+                items: list[tuple[int, str, WorkerResult, float]], *, keep_current: bool = False) -> int:
+    """Store finished materials, (id, smiles, result, seconds) each, in one short transaction: every
+    record of a material or none. A material deleted or edited while it was computed is left for the
+    next run. Each material's row is locked first (FOR UPDATE on PostgreSQL; SQLite's write transaction
+    holds the whole file), so two coordinators storing one material take turns. With `keep_current`
+    (a run over the missing and stale records), a material whose records are current by now (another
+    coordinator stored them meanwhile) is left as it is: it is written once. Returns how many materials
+    were stored."""
+    stored = 0
     with catalogue.transaction() as session:
-        material = session.get(Material, material_id)
-        if material is None or material.smiles != smiles:
-            return False  # deleted or edited while we computed: leave it for the next run
-        for stamp in stamps:
-            arrays, summary = result[stamp.kind]
-            save_record(session, material, stamp, arrays, summary, elapsed_s=elapsed_s)
-    return True
+        for material_id, smiles, result, elapsed_s in items:
+            material = session.get(Material, material_id, with_for_update=True)
+            if material is None or material.smiles != smiles:
+                continue
+            if keep_current and _all_current(session, material, stamps):
+                continue
+            for stamp in stamps:
+                arrays, summary = result[stamp.kind]
+                save_record(session, material, stamp, arrays, summary, elapsed_s=elapsed_s)
+            stored += 1
+    return stored
+
+
+def _all_current(session, material: Material, stamps: list[EngineStamp]) -> bool:
+    found = {(r.kind, r.engine_name): r for r in session.scalars(select(ComputedRecord).where(
+        ComputedRecord.material_id == material.id))}
+    return all(is_current(found.get((s.kind, s.engine_name)), s, material.inchikey) for s in stamps)
 
 
 def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str], WorkerResult],
         materials: list[tuple[int, str, str]], *, processes: int | None = None,
-        progress: Callable[[int], None] | None = None) -> JobReport:
-    """Compute `worker(smiles)` for each material in worker processes and store the records."""
+        progress: Callable[[int], None] | None = None, cluster: str | None = None,
+        keep_current: bool = False) -> JobReport:
+    """Compute `worker(smiles)` for each material in worker processes and store the records.
+
+    With `cluster` (a Dask scheduler address such as tcp://host:8786, or local:N), the materials are
+    computed on that Dask cluster instead (`library.catalogue.cluster`). `keep_current`: the materials
+    were chosen as missing or stale, so one another writer made current meanwhile is not written again."""
+    if cluster:
+        from library.catalogue import cluster as cluster_jobs
+
+        return cluster_jobs.run(catalogue, stamps, worker, materials, address=cluster, progress=progress,
+                                keep_current=keep_current)
     report = JobReport(planned=len(materials))
     started = time.perf_counter()
     if not materials:
@@ -144,7 +174,7 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
         while queue or pending:
             while queue and len(pending) < 2 * processes:
                 item = queue.popleft()
-                pending[executor.submit(_guarded, worker, item[2])] = item
+                pending[executor.submit(guarded, worker, item[2])] = item
             finished, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in finished:
                 material_id, name, smiles = pending.pop(future)
@@ -157,8 +187,11 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                         "by retiring it") from None
                 if error is not None:
                     report.failures.append((material_id, name, error))
-                elif _store(catalogue, material_id, smiles, stamps, result, elapsed):
-                    report.done += 1
+                else:
+                    write_started = time.perf_counter()
+                    report.done += store_batch(catalogue, stamps, [(material_id, smiles, result, elapsed)],
+                                               keep_current=keep_current)
+                    report.write_s += time.perf_counter() - write_started
                 if progress:
                     progress(1)
     except KeyboardInterrupt:

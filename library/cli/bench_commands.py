@@ -28,6 +28,15 @@ def cmd_bench_vibration(args) -> int:
     return 0
 
 
+def cmd_bench_compute(args) -> int:
+    from benchmarks import compute
+
+    _header("compute", args.processes)
+    compute.run(clusters=args.cluster or [], engines=args.engine or ["mmff"], count=args.count,
+                processes=args.processes)
+    return 0
+
+
 def cmd_bench_search(args) -> int:
     from benchmarks import search
     from library.cli.catalogue_commands import open_catalogue
@@ -65,7 +74,7 @@ def cmd_bench_load(args) -> int:
     return 0
 
 
-BENCHES = {"shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
+BENCHES = {"compute": cmd_bench_compute, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
             "web": cmd_bench_web, "load": cmd_bench_load, "startup": cmd_bench_startup}
 
 
@@ -78,6 +87,11 @@ def register(commands) -> None:
     p.add_argument("what", choices=sorted(BENCHES))
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
     p.add_argument("--sizes", type=int, nargs="+", help="search: synthetic catalogue sizes (default 10k 100k 1M)")
+    p.add_argument("--cluster", action="append", metavar="ADDRESS",
+                   help="compute: also run on this Dask cluster (local:N or tcp://HOST:8786); repeatable")
+    p.add_argument("--engine", action="append", metavar="ENGINE",
+                   help="compute: vibration engine(s) to measure (default mmff); repeatable")
+    p.add_argument("--count", type=int, default=24, help="compute: materials in the set (default 24)")
     p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
     p.add_argument("--skip-catalogue", action="store_true",
                    help="search: skip the recall figure on the real catalogue (--db, with computed records)")

@@ -31,7 +31,8 @@ def cmd_compute(args) -> int:
     with progress_bar(len(materials), f"{args.what} records", unit="material",
                       enabled=not args.quiet) as bar:
         report = jobs.run(catalogue, stamps, computations.worker(plan), materials,
-                          processes=args.processes, progress=bar.update)
+                          processes=args.processes, progress=bar.update,
+                          cluster=args.cluster, keep_current=not (args.all or args.materials))
     for material_id, name, reason in report.failures:
         print(f"failed: #{material_id} {name}: {reason}")
     print(report.summary())
@@ -61,6 +62,9 @@ def register(commands) -> None:
     p.add_argument("--engine", choices=engines.keys(), default=engines.DEFAULT_ENGINE,
                    help=f"vibration engine (default {engines.DEFAULT_ENGINE}): {engines.help_text()}")
     p.add_argument("--processes", type=int, default=None, help="worker processes (default: one per core)")
+    p.add_argument("--cluster", metavar="ADDRESS", default=None,
+                   help="compute on a Dask cluster: its scheduler (tcp://HOST:8786) or local:N to start N "
+                        "worker processes here (needs olibra[cluster])")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(handler=cmd_compute)
 

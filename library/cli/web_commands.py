@@ -128,6 +128,8 @@ def cmd_serve(args) -> int:
     config = {"OLIBRA_DB": url}
     if args.processes:
         config["OLIBRA_JOB_PROCESSES"] = args.processes
+    if args.cluster:
+        config["OLIBRA_JOB_CLUSTER"] = args.cluster
     if not os.environ.get(SECRET_KEY_VARIABLE):
         if not is_loopback(args.host):
             raise OlibraError(f"serving on {args.host} needs a fixed secret key: set {SECRET_KEY_VARIABLE} "
@@ -202,4 +204,7 @@ def register(commands) -> None:
                         "so that cheap pages are answered while heavy searches run)")
     p.add_argument("--processes", type=int, default=None,
                    help="worker processes for recompute jobs (default: one per core)")
+    p.add_argument("--cluster", metavar="ADDRESS", default=None,
+                   help="run recompute jobs on this Dask cluster (tcp://HOST:8786 or local:N; default "
+                        "$OLIBRA_CLUSTER, else local worker processes)")
     p.set_defaults(handler=cmd_serve)
