@@ -59,7 +59,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "user": ("web_commands", "web interface accounts: add, list, password, role, disable, enable, remove"),
     "serve": ("web_commands", "serve the web interface (waitress; 127.0.0.1:8150 by default)"),
     "demo": ("demo_commands", "build a demo catalogue from the seed files and compute its records"),
-    "bench": ("bench_commands", "print performance figures (shape, vibration, search, web, load, startup)"),
+    "bench": ("bench_commands", "print performance figures (compute, ensembles, shape, vibration, search, web, load, startup)"),
 }
 # One module per area; each has register(commands) adding the options of its commands.
 COMMAND_MODULES = list(dict.fromkeys(module for module, _ in COMMANDS.values()))

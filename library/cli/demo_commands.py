@@ -81,7 +81,7 @@ def serve_web(catalogue, args) -> None:
     print(f"\nweb interface: sign in as {DEMO_ACCOUNT!r} with password {password} (new on every demo run)")
     catalogue.dispose()
     cmd_serve(argparse.Namespace(db=catalogue.url, here=False, host="127.0.0.1", port=args.port,
-                                 threads=4, processes=args.processes))
+                                 threads=4, processes=args.processes, cluster=None))
 
 
 # Steps after the catalogue is ready.
