@@ -259,17 +259,10 @@ def overlay_recall(catalogue, *, queries: int = 20, k: int = 10, depths: tuple[i
     """Recall at k of the shape search as olibra runs it (moments, conformer-level moments, then
     overlay of `depth` candidates) against the exhaustive overlay ranking of the whole catalogue
     (kept in memory, so the speed-up is a lower bound), and the speed-up, per re-rank depth."""
-    from library import computations
-    from library.search.catalogue_index import load_index, record_stamps
+    from library.search.catalogue_index import load_index
     from library.search.errors import SearchError
     from library.search.queries import indexed_query
-    from library.search.substitutes import (
-        DEFAULT_RERANK_DEPTH,
-        OVERLAY_CONFORMERS,
-        build_filter,
-        find_substitutes,
-        shape_arrays,
-    )
+    from library.search.substitutes import DEFAULT_RERANK_DEPTH, build_filter, find_substitutes, stored_ensembles
 
     depths = depths or (20, 40, DEFAULT_RERANK_DEPTH)
     options = {"vibration_engine": vibration_engine} if vibration_engine else {}
@@ -277,9 +270,7 @@ def overlay_recall(catalogue, *, queries: int = 20, k: int = 10, depths: tuple[i
     ids = cat_index.index.ids_.tolist()
     if len(ids) < k + 1:
         raise SearchError(f"the catalogue has {len(ids)} indexed materials; the benchmark needs more than {k}")
-    arrays = shape_arrays(catalogue, ids, record_stamps(cat_index.vibration_engine)["shape"].engine_name)
-    ensembles = {i: computations.ensemble_from_arrays(cat_index.materials[i].smiles, arrays[i],
-                                                      max_members=OVERLAY_CONFORMERS) for i in ids}
+    ensembles = stored_ensembles(catalogue, cat_index, ids)
     overlay_metric = metrics.get("overlay")
     rng = np.random.default_rng(seed)
     chosen = sorted(rng.choice(ids, size=min(queries, len(ids)), replace=False).tolist())

@@ -78,19 +78,13 @@ def telling_pairs(index: SimilarityIndex, lists, observed, *, observed_alike: fl
 
 def handedness_scorer(catalogue, cat_index: CatalogueIndex):
     """A callback [(id_a, id_b)] -> {(id_a, id_b): handedness} from the stored conformers."""
-    from library import computations
     from library.search import metrics as metric_registry
-    from library.search.catalogue_index import record_stamps
-    from library.search.substitutes import OVERLAY_CONFORMERS, shape_arrays
+    from library.search.substitutes import stored_ensembles
 
     metric = metric_registry.get("handedness")
-    engine_name = record_stamps(cat_index.vibration_engine)["shape"].engine_name
 
     def score(pairs):
-        arrays = shape_arrays(catalogue, {i for pair in pairs for i in pair}, engine_name)
-        ensembles = {i: computations.ensemble_from_arrays(cat_index.materials[i].smiles, a,
-                                                          max_members=OVERLAY_CONFORMERS)
-                     for i, a in arrays.items()}
+        ensembles = stored_ensembles(catalogue, cat_index, {i for pair in pairs for i in pair})
         return {(a, b): metric.pair_similarity(ensembles[a], ensembles[b])
                 for a, b in pairs if a in ensembles and b in ensembles}
 

@@ -321,13 +321,12 @@ def _l1_one_to_many(query: np.ndarray, rows: np.ndarray, row_sums: np.ndarray | 
     return np.maximum(out, np.float32(0.0), out=out)
 
 
-# The fingerprint grid (library.vibration.spectrum.FINGERPRINT_DEFAULTS): 0-4000 cm^-1 in 5 cm^-1 steps.
-FINGERPRINT_GRID_CM1 = (0.0, 4000.0)
-
-
 def window_columns(width: int, window_cm1: tuple[float, float]) -> slice:
-    """The fingerprint columns inside `window_cm1` on the grid of `width` evenly spaced points."""
-    low, high = FINGERPRINT_GRID_CM1
+    """The fingerprint columns inside `window_cm1` on the stored fingerprints' grid (the record
+    settings, library.vibration.spectrum.FINGERPRINT_DEFAULTS) of `width` evenly spaced points."""
+    from library.vibration.spectrum import FINGERPRINT_DEFAULTS
+
+    low, high = FINGERPRINT_DEFAULTS["min_cm1"], FINGERPRINT_DEFAULTS["max_cm1"]
     step = (high - low) / (width - 1)
     return slice(int(np.ceil((window_cm1[0] - low) / step - 1e-9)), int(np.floor((window_cm1[1] - low) / step + 1e-9)) + 1)
 

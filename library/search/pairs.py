@@ -11,12 +11,12 @@ from library.search.catalogue_index import CatalogueIndex, MaterialInfo, load_in
 from library.search.errors import SearchError
 from library.search.queries import QueryMaterial, resolve_query
 from library.search import uncertainty
-from library.search.substitutes import OVERLAY_CONFORMERS
+from library.search.substitutes import overlay_ensemble
 
 
 def explain_pair(catalogue, query: QueryMaterial, other: MaterialInfo, cat_index: CatalogueIndex) -> dict:
     """Why two materials score as they do: overlay scores, volume ratio, matched and unmatched bands."""
-    from library import computations, shape
+    from library import shape
     from library.catalogue import records
     from library.vibration import spectrum as spectrum_module
 
@@ -32,9 +32,7 @@ def explain_pair(catalogue, query: QueryMaterial, other: MaterialInfo, cat_index
         query_shape = shape_loaded[query.material_id].arrays
         loaded = vibration_loaded[query.material_id]
         query_vibration = (loaded.arrays, loaded.summary)
-    ensembles = (computations.ensemble_from_arrays(query.smiles, query_shape, max_members=OVERLAY_CONFORMERS),
-                 computations.ensemble_from_arrays(other.smiles, shape_loaded[other.id].arrays,
-                                                   max_members=OVERLAY_CONFORMERS))
+    ensembles = (overlay_ensemble(query.smiles, query_shape), overlay_ensemble(other.smiles, shape_loaded[other.id].arrays))
     overlay = shape.overlay_similarity(*ensembles, mode="tversky")
     handedness = metric_registry.get("handedness").pair_similarity(*ensembles)
     other_vibration = vibration_loaded[other.id]

@@ -86,6 +86,21 @@ def shape_arrays(catalogue, material_ids, engine_name: str) -> dict[int, dict]:
     return {i: r.arrays for i, r in loaded.items()}
 
 
+def overlay_ensemble(smiles: str, arrays: dict):
+    """A material's stored conformers as the on-demand overlay metrics (overlay, handedness) score
+    them: its OVERLAY_CONFORMERS most populated."""
+    from library import computations
+
+    return computations.ensemble_from_arrays(smiles, arrays, max_members=OVERLAY_CONFORMERS)
+
+
+def stored_ensembles(catalogue, cat_index: CatalogueIndex, material_ids) -> dict:
+    """{material id: :func:`overlay_ensemble`} of the materials that have a current shape record."""
+    engine_name = record_stamps(cat_index.vibration_engine)["shape"].engine_name
+    return {i: overlay_ensemble(cat_index.materials[i].smiles, a)
+            for i, a in shape_arrays(catalogue, material_ids, engine_name).items()}
+
+
 def overlay_scorer(catalogue, cat_index: CatalogueIndex, query: QueryMaterial, *,
                    depth: int = DEFAULT_RERANK_DEPTH):
     """A re-rank callback for a pool of moment-ranked candidates: the `depth` candidates whose best
@@ -104,15 +119,13 @@ def overlay_scorer(catalogue, cat_index: CatalogueIndex, query: QueryMaterial, *
             query_moments, computations.top_conformer_moments(arrays[c], OVERLAY_CONFORMERS))
             for c in candidate_ids]
         chosen = set(np.argsort(-np.asarray(closeness), kind="stable")[:depth].tolist())
-        query_ensemble = computations.ensemble_from_arrays(query.smiles, query_arrays,
-                                                           max_members=OVERLAY_CONFORMERS)
+        query_ensemble = overlay_ensemble(query.smiles, query_arrays)
         out = []
         for position, candidate in enumerate(candidate_ids):
             if position not in chosen:
                 out.append(float("nan"))
                 continue
-            ensemble = computations.ensemble_from_arrays(cat_index.materials[candidate].smiles, arrays[candidate],
-                                                         max_members=OVERLAY_CONFORMERS)
+            ensemble = overlay_ensemble(cat_index.materials[candidate].smiles, arrays[candidate])
             out.append(overlay.pair_similarity(query_ensemble, ensemble))
         return out
 

@@ -184,6 +184,7 @@ class ConformerModel:
         self.step_a, self.scheme = step_a, scheme
         self.tolerance = gradient_tolerance_kcal_mol_a
         self._hessian_at: tuple[np.ndarray, np.ndarray] | None = None
+        self._dipole_derivatives: np.ndarray | None = None
 
     def _hessian(self, x: np.ndarray) -> np.ndarray:
         return self.field.hessian(x, step_a=self.step_a, scheme=self.scheme)
@@ -211,12 +212,13 @@ class ConformerModel:
         return x, float(energy), gradient
 
     def dipole_derivatives(self) -> np.ndarray:
-        """(3N, 3) Cartesian dipole derivatives in elementary charges from the fixed partial charges."""
-        charges = np.array([self.field_model_charge(i) for i in range(self.field.mol.GetNumAtoms())])
-        return np.kron(charges[:, None], np.eye(3))
-
-    def field_model_charge(self, atom: int) -> float:
-        return float(self.field.properties.GetMMFFPartialCharge(atom))
+        """(3N, 3) Cartesian dipole derivatives in elementary charges from the fixed partial charges
+        (the same at every geometry, so computed once)."""
+        if self._dipole_derivatives is None:
+            charges = np.array([self.field.properties.GetMMFFPartialCharge(i)
+                                for i in range(self.field.mol.GetNumAtoms())], dtype=float)
+            self._dipole_derivatives = np.kron(charges[:, None], np.eye(3))
+        return self._dipole_derivatives
 
     def hessian(self, positions_a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if self._hessian_at is not None and np.array_equal(self._hessian_at[0], positions_a):
