@@ -1,7 +1,7 @@
 """Benchmark of conformer-sampling noise: re-embed every seed material with another random seed and
 score it against itself.
 
-Run: olibra bench ensembles [--count N] [--seeds A B]
+Run: olibra bench ensembles [--ensemble-count N] [--oversampling F]
 
 Prints, over the materials, the distribution (min, 5th percentile, median) of the shape and the
 vibration (MMFF94 EVA fingerprint) self-similarity between the two embeddings, the materials below
@@ -30,9 +30,20 @@ def _records(smiles: str, seed: int):
     return vector, fingerprint, len(ens.members)
 
 
-def run(*, count: int | None = None, seeds: tuple[int, int] = (0xC0FFEE, 7), out=sys.stdout) -> dict:
-    """Self-similarity of each seed material between embeddings with two seeds (see module docstring)."""
+def run(*, count: int | None = None, seeds: tuple[int, int] = (0xC0FFEE, 7), oversampling: float | None = None,
+        out=sys.stdout) -> dict:
+    """Self-similarity of each seed material between embeddings with two seeds (see module docstring).
+
+    ``oversampling`` replaces the product's embeddings-per-kept-conformer factor for this run only.
+    """
+    from library import conformers
     from library.search import metrics
+
+    if oversampling is not None:
+        if not oversampling >= 1:
+            raise ValueError(f"oversampling must be at least 1, got {oversampling}")
+        conformers._EMBED_OVERSAMPLING = float(oversampling)
+    print(f"ensemble settings: {conformers._EMBED_OVERSAMPLING:g} embeddings per kept conformer", file=out)
 
     def score(name, a, b):
         block = [metrics.Block(metrics.prepare_feature(name, x)) for x in (a, b)]

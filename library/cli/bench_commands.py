@@ -78,8 +78,20 @@ def cmd_bench_ensembles(args) -> int:
     from benchmarks import ensembles
 
     _header("ensembles", None)
-    ensembles.run(count=args.ensemble_count)
+    ensembles.run(count=args.ensemble_count, oversampling=args.oversampling)
     return 0
+
+
+def _oversampling(text: str) -> float:
+    import argparse
+
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not value >= 1:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a factor of at least 1 (embeddings per kept conformer)")
+    return value
 
 
 BENCHES = {"compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
@@ -102,6 +114,9 @@ def register(commands) -> None:
     p.add_argument("--count", type=int, default=24, help="compute: materials in the set (default 24)")
     p.add_argument("--ensemble-count", type=int, default=None,
                    help="ensembles: only the first N benchmark materials (default: all)")
+    p.add_argument("--oversampling", type=_oversampling, default=None,
+                   help="ensembles: embeddings per kept conformer to try instead of the product's setting "
+                        "(measures what a more thorough search buys and costs)")
     p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
     p.add_argument("--skip-catalogue", action="store_true",
                    help="search: skip the recall figure on the real catalogue (--db, with computed records)")
