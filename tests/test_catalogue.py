@@ -9,8 +9,8 @@ from catalogue_helpers import draft
 from library.catalogue import curation, transfer
 from library.catalogue.models import AuditEntry, Material, Provenance
 
-CARVONE_R = "CC1=CC[C@@H](CC1=O)C(C)=C"
-CARVONE_S = "CC1=CC[C@H](CC1=O)C(C)=C"
+CARVONE_R = "CC1=CC[C@H](CC1=O)C(C)=C"  # CIP label R checked with RDKit's new CIP labeller
+CARVONE_S = "CC1=CC[C@@H](CC1=O)C(C)=C"
 LINALOOL = "CC(C)=CCCC(C)(O)C=C"
 LINALOOL_D = "[2H]C([2H])=C([2H])C(O)(CC([2H])([2H])C([2H])=C(C([2H])([2H])[2H])C([2H])([2H])[2H])C([2H])([2H])[2H]"
 

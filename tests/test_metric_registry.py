@@ -73,8 +73,8 @@ def reference_pair(shape, a, b):
 
 # Structures from PubChem isomeric SMILES (from memory): (R)- and (S)-carvone, (+)/(-)-camphor,
 # an achiral pair (acetophenone, propiophenone).
-CARVONE_R = "CC1=CC[C@@H](CC1=O)C(C)=C"
-CARVONE_S = "CC1=CC[C@H](CC1=O)C(C)=C"
+CARVONE_R = "CC1=CC[C@H](CC1=O)C(C)=C"  # CIP label R checked with RDKit's new CIP labeller
+CARVONE_S = "CC1=CC[C@@H](CC1=O)C(C)=C"
 CAMPHOR_PLUS = "C[C@@]12CC[C@@H](C1(C)C)CC2=O"
 CAMPHOR_MINUS = "C[C@]12CC[C@H](C1(C)C)CC2=O"
 
@@ -97,3 +97,14 @@ def test_handedness_tells_mirror_images_apart_and_is_neutral_otherwise(hand_a, h
     achiral = conformers.ensemble("CC(=O)c1ccccc1")
     assert handedness.pair_similarity(a, achiral) == 1.0
     assert handedness.pair_similarity(conformers.ensemble("CCC(=O)c1ccccc1"), achiral) == 1.0
+
+
+def test_carvone_constants_carry_the_hands_their_names_say():
+    """The CIP labels of the test structures, by RDKit's CIP labeller (IUPAC 2013 rules)."""
+    from rdkit import Chem
+    from rdkit.Chem import rdCIPLabeler
+
+    for smiles, label in ((CARVONE_R, "R"), (CARVONE_S, "S")):
+        mol = Chem.MolFromSmiles(smiles)
+        rdCIPLabeler.AssignCIPLabels(mol)
+        assert [a.GetProp("_CIPCode") for a in mol.GetAtoms() if a.HasProp("_CIPCode")] == [label]
