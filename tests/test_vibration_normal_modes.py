@@ -127,6 +127,45 @@ def test_against_ase_vibrations_data_on_the_same_hessian():
     assert ours == pytest.approx(reference, abs=1.0)  # brief: within 1 cm^-1
 
 
+def _eckart_projector(positions, masses):
+    """I - (projector on the translations and infinitesimal rotations) in mass-weighted coordinates,
+    built by hand from the Eckart conditions (Phys. Rev. 47, 552 (1935)), independent of
+    library.vibration.normal_modes."""
+    sqrt_m = np.sqrt(masses)
+    centred = positions - (masses[:, None] * positions).sum(axis=0) / masses.sum()
+    vectors = []
+    for axis in np.eye(3):
+        vectors.append((sqrt_m[:, None] * axis[None, :]).ravel())  # translation along the axis
+        vectors.append((sqrt_m[:, None] * np.cross(axis[None, :], centred)).ravel())  # rotation about it
+    q, _ = np.linalg.qr(np.array(vectors).T)
+    return np.eye(3 * len(masses)) - q @ q.T
+
+
+def test_projection_agrees_with_a_hand_built_eckart_projector_on_an_mmff_hessian():
+    """Same real molecule and Hessian as the ASE check, but projected both ways: only rounding may differ."""
+    from library.vibration.mmff import ForceFieldModel
+
+    mol = Chem.AddHs(Chem.MolFromSmiles("CC=O"))
+    AllChem.EmbedMolecule(mol, randomSeed=42)
+    model = ForceFieldModel(mol)
+    model.minimize()
+    x = model.positions_a().reshape(-1, 3)
+    hessian = model.hessian(x.ravel())
+    masses = atomic_masses_amu(model.mol)
+    projector = _eckart_projector(x, masses)
+    basis, _ = rigid_body_basis(x, masses)
+    assert np.allclose(np.eye(len(projector)) - basis @ basis.T, projector, atol=1e-10)
+    inv_sqrt_m = np.repeat(1 / np.sqrt(masses), 3)
+    mass_weighted = hessian * inv_sqrt_m[:, None] * inv_sqrt_m[None, :]
+    eigenvalues = np.linalg.eigvalsh(projector @ mass_weighted @ projector)
+    eigenvalues = np.sort(eigenvalues[np.argsort(np.abs(eigenvalues))[6:]])  # drop the six rigid-body zeros
+    # kcal/mol/A^2/amu -> s^-2 -> cm^-1, with scipy.constants (CODATA) only
+    per_s2 = constants.calorie * 1e3 / constants.N_A / 1e-20 / constants.atomic_mass
+    expected = np.sign(eigenvalues) * np.sqrt(np.abs(eigenvalues) * per_s2) / (2 * math.pi * constants.c) / 100
+    ours = analyze(hessian, x, masses).frequencies_cm1
+    assert ours == pytest.approx(expected, rel=1e-7, abs=1e-4)  # rounding only (float64 eigensolvers)
+
+
 @pytest.mark.parametrize(
     "hessian, positions, masses, fragment",
     [
