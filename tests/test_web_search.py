@@ -13,6 +13,7 @@ import re
 import shutil
 from pathlib import Path
 
+import numpy as np
 import pytest
 from sqlalchemy import func, select
 
@@ -379,7 +380,7 @@ def test_material_page_draws_the_spectrum_and_npr_position(reader, catalogue):
     citral = material_id(catalogue, "Citral")
     page = reader.get(f"/materials/{citral}").text
     spectrum = re.search(r'<svg class="chart spectrum".*?</svg>', page, re.DOTALL).group(0)
-    band_titles = re.findall(r"<title>(\d+) cm⁻¹, relative height ([\d.]+)</title>", spectrum)
+    band_titles = re.findall(r"<title>(\d+) cm⁻¹(?: \([^)]*\))?, relative height ([\d.]+)</title>", spectrum)
     assert len(band_titles) >= 6 and max(float(h) for _, h in band_titles) == 1.0
     from library.search.spectra import spectrum_profile
 
@@ -387,5 +388,25 @@ def test_material_page_draws_the_spectrum_and_npr_position(reader, catalogue):
     assert [int(p) for p, _ in band_titles] == [round(b.position_cm1) for b in profile.bands]
     # the tallest band is the C-H stretch cluster (textbook: 2850-3100 cm-1; MMFF94 within ~10 %)
     assert 2700 <= int(band_titles[0][0]) <= 3300
+    # drawn as an IR spectrum (MMFF gives intensities), with the vertical axis named and the
+    # aldehyde's C=O stretch labelled as such (textbook: 1680-1740 cm-1 for an aldehyde C=O)
+    assert "relative IR intensity" in spectrum
+    carbonyl = re.search(r'class="band-label"[^>]*>(\d+) C=O</text>', spectrum)
+    assert carbonyl and 1600 <= int(carbonyl.group(1)) <= 1800
     assert 'class="chart npr"' in page and "NPR1" in page
     assert 'href="/substitutes?material=Citral"' in page and 'href="/compare?a=Citral"' in page
+
+
+def test_spectrum_band_labels_never_overlap_and_diagnostic_groups_come_first():
+    from library.vibration.spectrum import Band
+    from webui import charts
+
+    # three bands 10 cm-1 apart (their labels would overlap), one far away, one C=O band
+    bands = (Band(3000.0, 1.0), Band(2990.0, 0.9), Band(2980.0, 0.8), Band(1200.0, 0.5),
+             Band(1710.0, 0.2, "C=O"))
+    printed = charts._labelled_bands(bands, 3, 20, 720)
+    assert printed == [True, False, False, True, True]
+    svg = str(charts.spectrum_svg(type("P", (), {"name": "x", "engine": "mmff", "weighting": "IR intensity",
+                                                "grid_cm1": np.arange(0, 4001, 5.0),
+                                                "curve": np.zeros(801), "bands": bands})()))
+    assert svg.count('class="band-label"') == 3 and ">1710 C=O</text>" in svg

@@ -48,31 +48,69 @@ def _axis(left, width, y, *, labels: bool = True) -> list[str]:
 
 
 def _band_title(band, extra: str = "") -> str:
-    return escape(f"{band.position_cm1:.0f} cm⁻¹, relative height {band.relative_height:.2f}{extra}")
+    group = f" ({band.label})" if getattr(band, "label", None) else ""
+    return escape(f"{band.position_cm1:.0f} cm⁻¹{group}, relative height {band.relative_height:.2f}{extra}")
+
+
+def _band_text(band) -> str:
+    """A band's printed label: its position, and its diagnostic group when it has one."""
+    label = getattr(band, "label", None)
+    return escape(f"{band.position_cm1:.0f}" + (f" {label}" if label else ""))
+
+
+LABEL_CHAR_PX = 7.0  # about one character of the 12 px chart font
+
+
+def _labelled_bands(bands, labelled: int, left: float, plot_w: float) -> list[bool]:
+    """Which bands get a printed label: every band of a diagnostic group, then the tallest others up to
+    `labelled` in all, leaving out any label that would overlap one already placed."""
+    order = sorted(range(len(bands)), key=lambda i: (getattr(bands[i], "label", None) is None, i))
+    placed: list[tuple[float, float]] = []
+    printed = [False] * len(bands)
+    for i in order:
+        if sum(printed) >= max(labelled, sum(getattr(b, "label", None) is not None for b in bands)):
+            break
+        x = _x(bands[i].position_cm1, left, plot_w)
+        half = len(str(_band_text(bands[i]))) * LABEL_CHAR_PX / 2 + 3
+        if all(abs(x - other) > half + other_half for other, other_half in placed):
+            placed.append((x, half))
+            printed[i] = True
+    return printed
+
+
+def _value_axis_label(x: float, y: float, weighting: str) -> str:
+    """The vertical axis's name, written upwards beside it."""
+    return (f'<text class="axis-label" x="{x:.1f}" y="{y:.1f}" text-anchor="middle" '
+            f'transform="rotate(-90 {x:.1f} {y:.1f})">relative {escape(weighting)}</text>')
 
 
 def spectrum_svg(profile, *, width: int = 760, height: int = 230, labelled: int = 6) -> Markup:
     """One material's smoothed spectrum with its main bands marked; hovering a band names it."""
-    left, right, top, bottom = 20, 20, 26, 44
+    left, right, top, bottom = 34, 20, 26, 44
     plot_w, plot_h = width - left - right, height - top - bottom
+    weighting = getattr(profile, "weighting", "mode count")
     base = top + plot_h
     grid, curve = _reduce(profile.grid_cm1, profile.curve, 400)
     xs = [_x(g, left, plot_w) for g in grid]
     ys = [base - c * plot_h for c in curve]
     parts = [f'<svg class="chart spectrum" viewBox="0 0 {width} {height}" width="{width}" height="{height}" '
-             f'role="img" aria-label="{escape(profile.name)}: harmonic spectrum with main bands">',
-             f'<title>{escape(profile.name)}: harmonic spectrum ({escape(profile.engine)})</title>',
+             f'role="img" aria-label="{escape(profile.name)}: harmonic spectrum ({escape(weighting)}) '
+             f'with main bands">',
+             f'<title>{escape(profile.name)}: harmonic spectrum ({escape(profile.engine)}), each mode weighted '
+             f'by {escape(weighting)}</title>',
              f'<polyline class="curve curve-a" points="{_points(xs, ys)}"/>']
     parts += _axis(left, plot_w, base)
-    for number, band in enumerate(profile.bands):
+    parts.append(f'<line class="axis" x1="{left}" y1="{top}" x2="{left}" y2="{base}"/>')
+    parts.append(_value_axis_label(left - 10, top + plot_h / 2, weighting))
+    for band, printed in zip(profile.bands, _labelled_bands(profile.bands, labelled, left, plot_w)):
         x = _x(band.position_cm1, left, plot_w)
         y = base - band.relative_height * plot_h
         parts.append(f'<g class="band"><title>{_band_title(band)}</title>'
                      f'<line class="band-line" x1="{x:.1f}" y1="{base}" x2="{x:.1f}" y2="{y:.1f}"/>'
                      f'<circle class="band-dot" cx="{x:.1f}" cy="{y:.1f}" r="4"/>')
-        if number < labelled:
+        if printed:
             parts.append(f'<text class="band-label" x="{x:.1f}" y="{y - 7:.1f}" text-anchor="middle">'
-                         f'{band.position_cm1:.0f}</text>')
+                         f'{_band_text(band)}</text>')
         parts.append("</g>")
     parts.append("</svg>")
     return Markup("".join(parts))
@@ -81,10 +119,11 @@ def spectrum_svg(profile, *, width: int = 760, height: int = 230, labelled: int 
 def mirrored_spectra_svg(profile_a, profile_b, bands, *, width: int = 900, height: int = 340) -> Markup:
     """A's spectrum above the axis, B's mirrored below; matched main bands joined and colored as
     matched, unmatched bands colored by the material that has them. `bands` is a BandMatch."""
-    left, right, top, bottom = 20, 20, 22, 44
+    left, right, top, bottom = 34, 20, 22, 44
     plot_w = width - left - right
     half = (height - top - bottom) / 2
     middle = top + half
+    weighting = getattr(profile_a, "weighting", "mode count")
     parts = [f'<svg class="chart spectrum mirrored" viewBox="0 0 {width} {height}" width="{width}" '
              f'height="{height}" role="img" aria-label="{escape(profile_a.name)} above, '
              f'{escape(profile_b.name)} mirrored below, with matched and unmatched bands">']
@@ -115,6 +154,8 @@ def mirrored_spectra_svg(profile_a, profile_b, bands, *, width: int = 900, heigh
                          f'<line class="band-line" x1="{x:.1f}" y1="{middle}" x2="{x:.1f}" y2="{y:.1f}"/>'
                          f'<rect class="band-dot" x="{x - 4:.1f}" y="{y - 4:.1f}" width="8" height="8"/></g>')
     parts += _axis(left, plot_w, top + 2 * half)
+    parts.append(f'<line class="axis" x1="{left}" y1="{top}" x2="{left}" y2="{top + 2 * half}"/>')
+    parts.append(_value_axis_label(left - 10, middle, weighting))
     parts.append(f'<line class="axis zero" x1="{left}" y1="{middle}" x2="{left + plot_w}" y2="{middle}"/>')
     parts.append("</svg>")
     return Markup("".join(parts))

@@ -36,8 +36,11 @@ class SpectrumProfile:
     """A material's smoothed harmonic spectrum for drawing: curve on a fixed grid plus its main bands.
 
     grid_cm1: wavenumbers (cm^-1), 0-4000 in 5 cm^-1 steps; curve: band density scaled to a largest
-    value of 1 (sigma 10 cm^-1, population-weighted, the same curve the EVA fingerprint uses);
-    bands: main bands (position in cm^-1, height relative to the tallest), tallest first.
+    value of 1 (sigma 10 cm^-1, population-weighted), each mode weighted by its infrared intensity
+    when the engine gives intensities (as an IR spectrum is drawn), else counted once (the EVA
+    curve); weighting: which of the two ("IR intensity" or "mode count"), for the axis label;
+    bands: main bands (position in cm^-1, height relative to the tallest, diagnostic group), tallest
+    first, found on the same weighting as the curve.
     """
 
     material_id: int
@@ -46,6 +49,7 @@ class SpectrumProfile:
     grid_cm1: np.ndarray
     curve: np.ndarray
     bands: tuple
+    weighting: str = "mode count"
 
 
 def spectrum_profile(catalogue, key: str, *, vibration_engine: str = DEFAULT_ENGINE,
@@ -59,9 +63,11 @@ def spectrum_profile(catalogue, key: str, *, vibration_engine: str = DEFAULT_ENG
         material_id = curation.find_material(session, key).id
     name, spectrum = material_spectrum(catalogue, str(material_id), vibration_engine=vibration_engine)
     grid = spectrum_module.grid_cm1()
-    curve = spectrum_module.fingerprint(spectrum, normalization="max")
+    weighting = "ir" if spectrum.has_ir else "none"
+    curve = spectrum_module.fingerprint(spectrum, normalization="max", intensity_weighting=weighting)
     return SpectrumProfile(material_id, name, stamp.engine_name, grid, curve,
-                           spectrum_module.main_bands(spectrum, bands))
+                           spectrum_module.main_bands(spectrum, bands, intensity_weighting=weighting),
+                           "IR intensity" if weighting == "ir" else "mode count")
 
 
 def fingerprint_curve(cat_index: CatalogueIndex, material_id: int | None = None,
