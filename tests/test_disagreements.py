@@ -84,3 +84,20 @@ def test_observed_axis(planted):
 def test_jaccard():
     assert jaccard({"a", "b"}, {"b", "c"}) == pytest.approx(1 / 3)  # |{b}| / |{a, b, c}|
     assert jaccard(set(), set()) == 0.0
+
+
+def test_percentile_thresholds_read_the_catalogue_distribution(planted):
+    from library.search import disagreements as d
+
+    index = planted
+    resolved = d.resolve_thresholds(index, {"min_shape": "p0", "max_shape": "p100", "max_vibration": 0.25})
+    n = len(index.ids_)
+    rows_a, rows_b = np.triu_indices(n, 1)
+    scores = index.pair_scores(rows_a, rows_b)["shape"]
+    # sampled pairs lie among all pairs: p0 and p100 sit inside the exact range, and a number stays as given
+    assert scores.min() - 1e-6 <= resolved["min_shape"][0] <= resolved["max_shape"][0] <= scores.max() + 1e-6
+    assert resolved["min_shape"][1] == "p0" and resolved["max_vibration"] == (0.25, None)
+    assert d.resolve_thresholds(index, {"min_shape": "p50"}) == d.resolve_thresholds(index, {"min_shape": "p50"})
+    for bad in ("p-1", "p101", "1.5", "high"):
+        with pytest.raises(ValueError, match="percentile|similarity"):
+            d.parse_threshold(bad, "minimum shape")

@@ -208,6 +208,7 @@ def test_metric_matrices_agree_with_pair_scores(index):
 
 def test_search_commands_end_to_end(searchable, capsys, monkeypatch, tmp_path):
     import json
+    import re
 
     from library.cli import main
 
@@ -230,6 +231,10 @@ def test_search_commands_end_to_end(searchable, capsys, monkeypatch, tmp_path):
     assert result["scores"]["shape"] > 0.999 and result["scores"]["vibration"] < 0.9
     code, out, _ = run("disagreements", "--format", "csv", "--neighbors", "5")
     assert code == 0 and "Benzaldehyde-d6" in out and "indistinguishable by shape" in out
+    code, out, _ = run("disagreements", "--neighbors", "5", "--max-shape", "p10", "--limit", "1")
+    assert code == 0 and re.search(r"thresholds: .*shape <= 0\.\d{3} \(p10 of catalogue pairs\)", out)
+    code, _, err = run("disagreements", "--max-shape", "p200")
+    assert code == 2 and "is not a percentile" in err and "Traceback" not in err
     code, _, err = run("flag", "Citral", "Citral", "--kind", "other")
     assert code == 2 and "two different materials" in err
     target = tmp_path / "spectrum.svg"

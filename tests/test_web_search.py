@@ -245,6 +245,21 @@ def test_disagreements_list_both_telling_pairs_with_basis_and_observations(reade
     assert unobserved["observed"] is None and all(r["observed"] is None for r in unobserved["rows"])
 
 
+def test_disagreement_thresholds_as_percentiles_are_shown_as_similarities(reader):
+    body = reader.get("/api/disagreements?max_shape=p5&min_vibration=p95&direction=vibration-not-shape"
+                      "&per_page=200").get_json()
+    used = dict(re.findall(r"(shape <=|vibration >=) ([\d.]+) \(p\d+ of catalogue pairs\)", body["thresholds"]))
+    assert set(used) == {"shape <=", "vibration >="}
+    shape_at_most, vibration_at_least = float(used["shape <="]), float(used["vibration >="])
+    past = [r for r in body["rows"] if r["basis"] == "thresholds"]
+    assert all(r["shape"] <= shape_at_most + 1e-3 and r["vibration"] >= vibration_at_least - 1e-3 for r in past)
+    # the same similarities asked as numbers give the same pairs
+    same = reader.get(f"/api/disagreements?max_shape={shape_at_most}&min_vibration={vibration_at_least}"
+                      "&direction=vibration-not-shape&per_page=200").get_json()
+    assert {(r["a"]["id"], r["b"]["id"]) for r in same["rows"]} >= {(r["a"]["id"], r["b"]["id"]) for r in past}
+    assert "thresholds: shape &gt;= 0.900" in reader.get("/disagreements").text
+
+
 def test_disagreements_sort_page_and_export(reader):
     everything = reader.get("/api/disagreements?per_page=200&sort=gap&order=desc").get_json()
     gaps = [r["gap"] for r in everything["rows"]]
@@ -266,7 +281,8 @@ def test_disagreements_sort_page_and_export(reader):
 
 
 @pytest.mark.parametrize("arguments, message", [
-    ("min_shape=1.2", "minimum shape similarity 1.2 is outside"),
+    ("min_shape=1.2", "minimum shape similarity '1.2' is neither a similarity between 0 and 1"),
+    ("max_shape=p150", "maximum shape similarity 'p150' is not a percentile"),
     ("k=0", "neighbors per material 0 is outside"),
     ("k=many", "is not a whole number"),
     ("direction=sideways", "direction 'sideways' is not one of"),

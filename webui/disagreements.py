@@ -26,7 +26,7 @@ COLUMNS = [("direction", "Direction"), ("basis", "Basis"), ("a", "Material A"), 
 
 @blueprint.get("/disagreements")
 def index():
-    error = rows = label = None
+    error = rows = label = used = None
     page = pages = 1
     sort, order = request.args.get("sort", "rank"), request.args.get("order", "asc")
     sources = []
@@ -39,6 +39,7 @@ def index():
     if error is None:
         try:
             found, label = explore.find_disagreements(asked)
+            used = explore.thresholds_used(asked)
             ordered = explore.sort_rows(found, sort, order)
             total = len(ordered)
             page, pages = explore.page_argument(request.args, total, explore.DISAGREEMENTS_PER_PAGE)
@@ -47,7 +48,7 @@ def index():
         except OlibraError as exc:
             error = user_message(exc)
     return render_template(
-        "disagreements/index.html", asked=asked, rows=rows, label=label, error=error, total=total, page=page,
+        "disagreements/index.html", asked=asked, rows=rows, label=label, used=used, error=error, total=total, page=page,
         pages=pages, sort=sort, order=order, columns=COLUMNS, directions=DIRECTIONS, sources=sources,
         flag_kinds=observations.FLAG_KINDS, link=_link, here=request.full_path.rstrip("?")), 400 if error else 200
 

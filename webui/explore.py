@@ -19,7 +19,7 @@ from library.catalogue.transfer import spreadsheet_safe
 from library.errors import OlibraError
 from library.catalogue import observations
 from library.search import disagreement_policy, evidence, metrics, pairs, queries, spectra, substitutes
-from library.search.disagreements import DIRECTIONS
+from library.search.disagreements import DIRECTIONS, parse_threshold
 from webui import search_index, web_state
 from webui.heavy import heavy
 
@@ -266,10 +266,11 @@ def comparison_json(result) -> dict:
 
 @dataclass(frozen=True)
 class DisagreementRequest:
-    min_shape: float = 0.9
-    max_vibration: float = 0.6
-    min_vibration: float = 0.9
-    max_shape: float = 0.6
+    # each a similarity in 0-1 or a percentile of the catalogue's pairs ('p95')
+    min_shape: float | str = 0.9
+    max_vibration: float | str = 0.6
+    min_vibration: float | str = 0.9
+    max_shape: float | str = 0.6
     k: int = 20
     direction: str = "both"
     observation: str = "descriptors"
@@ -278,8 +279,13 @@ class DisagreementRequest:
 
 def disagreement_request(args) -> DisagreementRequest:
     def similarity(name, label, default):
-        return number_argument(args, name, label, default=default, low=0.0, high=1.0,
-                               example=" between 0 and 1, e.g. 0.9")
+        raw = text_argument(args, name, label, limit=30)
+        if not raw:
+            return default
+        try:
+            return parse_threshold(raw, label)
+        except ValueError as exc:
+            raise ArgumentError(str(exc)) from None
     direction = (args.get("direction") or "both").strip()
     if direction not in ("both",) + DIRECTIONS:
         raise ArgumentError(f"direction {direction[:30]!r} is not one of both, {', '.join(DIRECTIONS)}")
@@ -310,6 +316,14 @@ def find_disagreements(request: DisagreementRequest):
     def compute():
         return heavy("the disagreement list", work, key=("disagreements", request, search_index()[1]))
     return web_state().index_cache.memo(("disagreements", request), compute)
+
+
+def thresholds_used(request: DisagreementRequest) -> str:
+    """The thresholds of a request as similarities, percentiles resolved ('shape >= 0.912 (p90 ...)')."""
+    cat_index, _ = search_index()
+    return disagreement_policy.describe_thresholds(disagreement_policy.resolved_thresholds(
+        cat_index, min_shape=request.min_shape, max_vibration=request.max_vibration,
+        min_vibration=request.min_vibration, max_shape=request.max_shape))
 
 
 def disagreement_row(row) -> dict:

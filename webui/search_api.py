@@ -57,7 +57,8 @@ def disagreements():
     page, pages = explore.page_argument(request.args, len(ordered), per_page)
     rows = ordered[(page - 1) * per_page: page * per_page]
     return jsonify(rows=[explore.disagreement_row(r) for r in rows], total=len(ordered), page=page,
-                   per_page=per_page, pages=pages, observed=label, caution=CAUTION)
+                   per_page=per_page, pages=pages, observed=label, thresholds=explore.thresholds_used(asked),
+                   caution=CAUTION)
 
 
 @blueprint.get("/scorecard")

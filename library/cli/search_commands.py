@@ -12,7 +12,7 @@ from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
 from library.search import metrics
-from library.search.disagreement_policy import find_disagreement_rows
+from library.search.disagreement_policy import describe_thresholds, find_disagreement_rows, resolved_thresholds
 from library.search.disagreements import DIRECTIONS
 from library.search.evidence import run_scorecard
 from library.search.pairs import compare
@@ -168,10 +168,15 @@ def cmd_compare(args) -> int:
 def cmd_disagreements(args) -> int:
     catalogue = open_catalogue(args)
     observation = None if args.observed == "none" else args.observed
+    from library.search.catalogue_index import load_index
+
+    cat_index = load_index(catalogue, **({"vibration_engine": args.engine} if args.engine else {}))
+    thresholds = dict(min_shape=args.min_shape, max_vibration=args.max_vibration,
+                      min_vibration=args.min_vibration, max_shape=args.max_shape)
+    used = describe_thresholds(resolved_thresholds(cat_index, **thresholds))
     rows, label = find_disagreement_rows(
-        catalogue, k=args.neighbors, min_shape=args.min_shape, max_vibration=args.max_vibration,
-        min_vibration=args.min_vibration, max_shape=args.max_shape, direction=args.direction,
-        observation=observation, include_retired=args.include_retired, vibration_engine=args.engine)
+        catalogue, k=args.neighbors, **thresholds, direction=args.direction,
+        observation=observation, include_retired=args.include_retired, cat_index=cat_index)
     table = []
     for r in rows[: args.limit]:
         p = r.pair
@@ -187,6 +192,7 @@ def cmd_disagreements(args) -> int:
     if args.format == "table":
         print(f"{len(rows)} pair(s) found, {len(table)} shown"
               + (f"; observed similarity: {label}" if label else ""))
+        print(f"thresholds: {used}")
     return 0
 
 
@@ -319,10 +325,11 @@ def register(commands) -> None:
 
     p = commands.add_parser("disagreements")
     p.add_argument("--direction", choices=("both",) + DIRECTIONS, default="both")
-    p.add_argument("--min-shape", type=float, default=0.9)
-    p.add_argument("--max-vibration", type=float, default=0.6)
-    p.add_argument("--min-vibration", type=float, default=0.9)
-    p.add_argument("--max-shape", type=float, default=0.6)
+    for option, default in (("--min-shape", "0.9"), ("--max-vibration", "0.6"), ("--min-vibration", "0.9"),
+                            ("--max-shape", "0.6")):
+        p.add_argument(option, default=default, metavar="SIMILARITY|pNN",
+                       help=f"a similarity in 0-1 or a percentile of the catalogue's pairs, e.g. p95 "
+                            f"(default {default})")
     p.add_argument("--neighbors", type=int, default=20, help="neighbor-list length per material (default 20)")
     p.add_argument("--observed", default="descriptors",
                    help="observed similarity: 'descriptors' (default), a data set name, or 'none'")

@@ -91,8 +91,28 @@ def handedness_scorer(catalogue, cat_index: CatalogueIndex):
     return score
 
 
-def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float = 0.9,
-                           max_vibration: float = 0.6, min_vibration: float = 0.9, max_shape: float = 0.6,
+def resolved_thresholds(cat_index: CatalogueIndex, **thresholds) -> dict[str, tuple[float, str | None]]:
+    """The four thresholds as similarities, each with the percentile it was asked as (see
+    disagreements.resolve_thresholds); SearchError for a value that is neither."""
+    try:
+        parsed = {name: disagreements.parse_threshold(value, name.replace("_", " "))
+                  for name, value in thresholds.items()}
+        return disagreements.resolve_thresholds(cat_index.index, parsed)
+    except ValueError as exc:
+        raise SearchError(str(exc)) from None
+
+
+def describe_thresholds(resolved: dict[str, tuple[float, str | None]]) -> str:
+    """One line: 'shape >= 0.912 (p90), vibration <= 0.600, ...' for the thresholds actually used."""
+    signs = {"min": ">=", "max": "<="}
+    return ", ".join(f"{name.split('_', 1)[1]} {signs[name.split('_', 1)[0]]} {value:.3f}"
+                     + (f" ({asked} of catalogue pairs)" if asked else "")
+                     for name, (value, asked) in resolved.items())
+
+
+def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float | str = 0.9,
+                           max_vibration: float | str = 0.6, min_vibration: float | str = 0.9,
+                           max_shape: float | str = 0.6,
                            direction: str = "both", observation: str | None = DESCRIPTORS,
                            observed_alike: float = 0.5, observed_unalike: float = 0.2,
                            include_retired: bool = False, vibration_engine: str | None = None,
@@ -103,13 +123,17 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float = 0.9,
     First the telling pairs, which one metric cannot tell apart (similarity >= 0.999) while
     the other can (<= 0.995; for mirror images the handedness metric, below 0.999), by gap; then
     the pairs past the user's thresholds, by gap. The first `noise_rows` rows say whether their gap is
-    within conformer noise.
+    within conformer noise. A threshold may be a percentile of the catalogue's pairs ('p95').
     """
     from library.catalogue import observations
 
     if cat_index is None:
         cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
     index = cat_index.index
+    resolved = resolved_thresholds(cat_index, min_shape=min_shape, max_vibration=max_vibration,
+                                   min_vibration=min_vibration, max_shape=max_shape)
+    min_shape, max_vibration, min_vibration, max_shape = (
+        resolved[name][0] for name in ("min_shape", "max_vibration", "min_vibration", "max_shape"))
     observed, label = observed_similarity(catalogue, observation)
     filters = build_filter(include_retired=include_retired, include_restricted=True)
     try:

@@ -79,6 +79,58 @@ def _pair_ranks(lists) -> dict[tuple[int, int], int]:
     return ranks
 
 
+# A threshold is a similarity in 0-1 or a percentile "pNN" of the metric over catalogue pairs.
+THRESHOLD_METRICS = {"min_shape": "shape", "max_shape": "shape",
+                     "min_vibration": "vibration", "max_vibration": "vibration"}
+PERCENTILE_PAIRS = 20_000  # random distinct pairs the percentiles are read from (seeded)
+
+
+def parse_threshold(value, label: str) -> float | str:
+    """A similarity in 0-1 (float) or a percentile such as 'p95' (kept as text until resolved)."""
+    text = str(value).strip().lower()
+    if text.startswith("p"):
+        try:
+            percent = float(text[1:])
+        except ValueError:
+            percent = float("nan")
+        if not 0.0 <= percent <= 100.0:
+            raise ValueError(f"{label} {str(value)[:20]!r} is not a percentile; write p followed by 0-100, e.g. p95")
+        return f"p{percent:g}"
+    try:
+        number = float(text)
+    except ValueError:
+        number = float("nan")
+    if not 0.0 <= number <= 1.0:
+        raise ValueError(f"{label} {str(value)[:20]!r} is neither a similarity between 0 and 1 (e.g. 0.9) "
+                         "nor a percentile of the catalogue's pairs (e.g. p95)")
+    return number
+
+
+def resolve_thresholds(index: SimilarityIndex, thresholds: Mapping[str, float | str], *,
+                       pairs: int = PERCENTILE_PAIRS, seed: int = 0) -> dict[str, tuple[float, str | None]]:
+    """{name: (similarity, the percentile it came from or None)} for thresholds named as in
+    :data:`THRESHOLD_METRICS`. Percentiles are read from the metric's similarities over `pairs` random
+    distinct catalogue pairs (seeded: the same catalogue gives the same values)."""
+    out: dict[str, tuple[float, str | None]] = {}
+    wanted = {THRESHOLD_METRICS[n] for n, v in thresholds.items() if isinstance(v, str)}
+    scores: dict[str, np.ndarray] = {}
+    if wanted:
+        n = len(index.ids_)
+        if n < 2:
+            raise ValueError("percentile thresholds need at least two indexed materials")
+        rng = np.random.default_rng(seed)
+        a = rng.integers(0, n, pairs)
+        b = (a + rng.integers(1, n, pairs)) % n  # never a material with itself
+        scores = index.pair_scores(a, b)
+    for name, value in thresholds.items():
+        if isinstance(value, str):
+            metric = THRESHOLD_METRICS[name]
+            out[name] = (float(np.percentile(scores[metric].astype(np.float64), float(value[1:]))), value)
+        else:
+            out[name] = (float(value), None)
+    return out
+
+
 def find_disagreements(
     index: SimilarityIndex,
     *,
