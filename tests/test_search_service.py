@@ -246,3 +246,26 @@ def test_search_commands_end_to_end(searchable, capsys, monkeypatch, tmp_path):
     assert "vibration" in out and "shape" in out
     code, _, err = run("search", "no such material and no SMILES (", "-k", "2")
     assert code == 2 and "no material matches" in err and "Traceback" not in err
+
+
+def test_streamed_arrays_equal_the_loaded_records_whatever_the_chunk(searchable, index):
+    """The index is read from the database a chunk of materials at a time: any chunk size gives the
+    same arrays as loading the whole records, in the order asked, and the index matches."""
+    from library.catalogue import records
+
+    catalogue, folder = searchable
+    ids = sorted(index.materials)[::-1] + [10**9]  # reversed order, and one id with no record
+    names = metrics.record_arrays("vibration")
+    engine = catalogue_index.record_stamps(index.vibration_engine)["vibration"].engine_name
+    with catalogue.reading() as session:
+        whole = records.load_records(session, "vibration", engine, material_ids=ids, names=names)
+        for chunk in (1, 3, 1000):
+            streamed = list(records.iter_arrays(session, "vibration", engine, ids, names, chunk=chunk))
+            assert [i for i, _ in streamed] == ids[:-1]
+            for material_id, arrays in streamed:
+                assert set(arrays) == set(names)
+                for name in names:
+                    assert np.array_equal(arrays[name], whole[material_id].arrays[name])
+    rebuilt = catalogue_index.load_index(catalogue, use_cache=False)
+    row = rebuilt.index.row_of(ids[0])
+    assert np.array_equal(rebuilt.index.fingerprints_[row], index.index.fingerprints_[index.index.row_of(ids[0])])

@@ -118,6 +118,31 @@ def load_records(session: Session, kind: str, engine_name: str, *, material_ids=
     return loaded
 
 
+READ_CHUNK = 2000  # materials per query when streaming arrays (also keeps under SQL parameter limits)
+
+
+def iter_arrays(session: Session, kind: str, engine_name: str, material_ids, names: tuple[str, ...], *,
+                chunk: int = READ_CHUNK):
+    """(material id, {array name: array}) for the given materials' records of one kind and engine, in
+    the order of `material_ids`, reading `chunk` materials per query as plain rows (no ORM objects):
+    memory stays at one chunk of the named arrays whatever the catalogue's size. Materials without
+    such a record are skipped."""
+    material_ids = list(material_ids)
+    for start in range(0, len(material_ids), chunk):
+        part = material_ids[start:start + chunk]
+        query = (select(ComputedRecord.material_id, ComputedArray.name, ComputedArray.shape, ComputedArray.data,
+                        ComputedArray.dtype)
+                 .join(ComputedArray, ComputedArray.record_id == ComputedRecord.id)
+                 .where(ComputedRecord.kind == kind, ComputedRecord.engine_name == engine_name,
+                        ComputedRecord.material_id.in_(part), ComputedArray.name.in_(list(names))))
+        found: dict[int, dict[str, np.ndarray]] = {}
+        for material_id, name, shape, data, dtype in session.execute(query):
+            found.setdefault(material_id, {})[name] = decode_array(shape, data, dtype)
+        for material_id in part:
+            if material_id in found:
+                yield material_id, found.pop(material_id)
+
+
 def summary_items(summary: dict, *, list_limit: int = 12) -> list[tuple[str, str]]:
     """A record's summary as (label, text) pairs for display: numbers to 4 significant digits."""
     items = []

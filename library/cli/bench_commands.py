@@ -5,6 +5,8 @@ The benchmarks live in the `benchmarks` package, loaded only when a benchmark ru
 
 from __future__ import annotations
 
+import sys
+
 
 def _header(what: str, processes: int | None) -> None:
     from benchmarks.materials import header
@@ -82,6 +84,19 @@ def cmd_bench_ensembles(args) -> int:
     return 0
 
 
+def cmd_bench_index(args) -> int:
+    from benchmarks import index_from_db
+    from library.catalogue.database import resolve_url
+
+    _header("index", None)
+    try:
+        index_from_db.run(resolve_url(args.db), copies=args.copies)
+    except ValueError as exc:
+        print(f"olibra: error: {exc}", file=sys.stderr)
+        return 2
+    return 0
+
+
 def _oversampling(text: str) -> float:
     import argparse
 
@@ -94,7 +109,7 @@ def _oversampling(text: str) -> float:
     return value
 
 
-BENCHES = {"compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
+BENCHES = {"index": cmd_bench_index, "compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
             "web": cmd_bench_web, "load": cmd_bench_load, "startup": cmd_bench_startup}
 
 
@@ -114,6 +129,8 @@ def register(commands) -> None:
     p.add_argument("--count", type=int, default=24, help="compute: materials in the set (default 24)")
     p.add_argument("--ensemble-count", type=int, default=None,
                    help="ensembles: only the first N benchmark materials (default: all)")
+    p.add_argument("--copies", type=int, default=50,
+                   help="index: copies of the catalogue in the synthetic one it is built from (default 50)")
     p.add_argument("--oversampling", type=_oversampling, default=None,
                    help="ensembles: embeddings per kept conformer to try instead of the product's setting "
                         "(measures what a more thorough search buys and costs)")

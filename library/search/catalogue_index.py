@@ -183,21 +183,35 @@ def needed_kinds() -> tuple[str, ...]:
 
 
 def _load_features(session, stamps, ready: list[int], infos: dict[int, MaterialInfo]) -> dict[str, np.ndarray]:
-    """Feature matrices (rows in the order of `ready`) read from the records."""
+    """Feature matrices (rows in the order of `ready`) read from the records.
+
+    Streams the records a chunk of materials at a time (records.iter_arrays) into matrices allocated
+    once, so building the index from the database needs about the memory of the index itself."""
     from library.catalogue import records
 
-    by_kind = {kind: records.load_records(session, kind, stamps[kind].engine_name, material_ids=ready,
-                                          names=metric_registry.record_arrays(kind))
-               for kind in needed_kinds()}
-    out = {}
-    for name, feature in metric_registry.FEATURES.items():
-        if feature.record_kind is not None and not all(
-                part in by_kind[feature.record_kind][i].arrays for i in ready for part in feature.arrays):
-            continue  # some record predates this feature: the metrics reading it are left out
-        rows = [metric_registry.feature_row(name, {k: by_kind[k][i].arrays for k in by_kind}, infos[i].smiles)
-                for i in ready]
-        out[name] = rows if feature.record_kind is None else np.stack(rows)
-    return out
+    kinds = needed_kinds()
+    features = metric_registry.FEATURES
+    out: dict[str, np.ndarray | list] = {name: [] for name, f in features.items() if f.record_kind is None}
+    complete = {name: True for name, f in features.items() if f.record_kind is not None}
+    for start in range(0, len(ready), records.READ_CHUNK):
+        part = ready[start:start + records.READ_CHUNK]
+        by_kind = {kind: dict(records.iter_arrays(session, kind, stamps[kind].engine_name, part,
+                                                  metric_registry.record_arrays(kind)))
+                   for kind in kinds}
+        for offset, material_id in enumerate(part):
+            arrays = {kind: by_kind[kind].get(material_id, {}) for kind in kinds}
+            for name, feature in features.items():
+                if feature.record_kind is None:
+                    out[name].append(metric_registry.feature_row(name, arrays, infos[material_id].smiles))
+                    continue
+                if not complete[name] or not all(p in arrays[feature.record_kind] for p in feature.arrays):
+                    complete[name] = False  # some record predates this feature: its metrics are left out
+                    continue
+                row = np.asarray(metric_registry.feature_row(name, arrays, infos[material_id].smiles))
+                if name not in out:
+                    out[name] = np.empty((len(ready),) + row.shape, row.dtype)
+                out[name][start + offset] = row
+    return {name: values for name, values in out.items() if complete.get(name, True)}
 
 
 def indexed_info(cat_index: CatalogueIndex, material_id: int, label: str | None = None) -> MaterialInfo:
