@@ -82,7 +82,15 @@ def cmd_bench_ensembles(args) -> int:
     return 0
 
 
-BENCHES = {"compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
+def cmd_bench_scorecard(args) -> int:
+    from benchmarks import scorecard
+
+    _header("scorecard", None)
+    scorecard.run(materials=args.materials)
+    return 0
+
+
+BENCHES = {"scorecard": cmd_bench_scorecard, "compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
             "web": cmd_bench_web, "load": cmd_bench_load, "startup": cmd_bench_startup}
 
 
@@ -102,6 +110,8 @@ def register(commands) -> None:
     p.add_argument("--count", type=int, default=24, help="compute: materials in the set (default 24)")
     p.add_argument("--ensemble-count", type=int, default=None,
                    help="ensembles: only the first N benchmark materials (default: all)")
+    p.add_argument("--materials", type=int, default=1000,
+                   help="scorecard: materials in the synthetic catalogue (default 1000)")
     p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
     p.add_argument("--skip-catalogue", action="store_true",
                    help="search: skip the recall figure on the real catalogue (--db, with computed records)")

@@ -146,21 +146,22 @@ def _positive_count(permutations) -> int:
 
 
 def _permuted_observations(rank_matrix: np.ndarray, permutations: int, seed: int):
-    """Blocks of the observation's upper-triangle ranks under seeded label permutations.
+    """Blocks of the observation's full rank matrix (flattened) under seeded label permutations.
 
     The k-th permutation draws ``order = rng.permutation(n)`` (the same draws as permuting the
     metric's labels by ``order``); permuting the observation by the inverse order gives the same
     statistic, and one gather then serves every metric.
     """
     n = rank_matrix.shape[0]
-    upper = np.flatnonzero(np.triu(np.ones((n, n), bool), 1))
     rng = np.random.default_rng(seed)
     done = 0
     while done < permutations:
         block = min(BLOCK, permutations - done)
-        inverse = np.argsort(np.stack([rng.permutation(n) for _ in range(block)]), axis=1)
-        flat = (inverse[:, :, None] * n + inverse[:, None, :]).reshape(block, -1)[:, upper]
-        yield rank_matrix.ravel()[flat]
+        out = np.empty((block, n * n))
+        for b in range(block):
+            inverse = np.argsort(rng.permutation(n))
+            out[b] = np.take(np.take(rank_matrix, inverse, axis=0), inverse, axis=1).ravel()
+        yield out
         done += block
 
 
@@ -183,31 +184,36 @@ def mantel_tests(observed, metrics: Sequence, *, controls: Sequence = (), permut
     x = ra[np.triu_indices(a.shape[0], 1)]
     x_norm2 = x @ x
     y_norm = np.sqrt(np.einsum("ij,ij->i", ys, ys))
-    if zs.shape[0]:
-        gram_inverse = np.linalg.pinv(zs @ zs.T)
-        residual = ys - (ys @ zs.T) @ gram_inverse @ zs
-        residual_norm = np.sqrt(np.einsum("ij,ij->i", residual, residual))
-        stacked = np.vstack([ys, residual, zs])
-    else:
-        stacked = ys
     m, c = ys.shape[0], zs.shape[0]
+    if c:
+        gram_inverse = np.linalg.pinv(zs @ zs.T)
+        coefficients = (ys @ zs.T) @ gram_inverse  # metric ranks fitted on the controls
+        residual = ys - coefficients @ zs
+        residual_norm = np.sqrt(np.einsum("ij,ij->i", residual, residual))
+    stacked = np.vstack([ys, zs])
 
     def statistics_of(products: np.ndarray):
         with np.errstate(invalid="ignore", divide="ignore"):
             plain = products[:, :m] / (np.sqrt(x_norm2) * y_norm)
             if not c:
                 return plain, None
-            fitted = np.einsum("bi,ij,bj->b", products[:, 2 * m:], gram_inverse, products[:, 2 * m:])
+            on_controls = products[:, m:]
+            fitted = np.einsum("bi,ij,bj->b", on_controls, gram_inverse, on_controls)
             x_residual = np.sqrt(np.maximum(x_norm2 - fitted, 0.0))
-            partial = products[:, m:2 * m] / (x_residual[:, None] * residual_norm)
+            # v . residual = v . y - coefficients . (Z v): one product per metric and control serves both tests
+            partial = (products[:, :m] - on_controls @ coefficients.T) / (x_residual[:, None] * residual_norm)
             partial[:, residual_norm < 1e-9 * np.maximum(y_norm, 1)] = np.nan  # a metric that is a control
         return plain, partial
 
     plain_obs, partial_obs = statistics_of((stacked @ x)[None, :])
     plain_count = np.zeros(m)
     partial_count = np.zeros(m)
+    n = a.shape[0]
+    full = np.zeros((stacked.shape[0], n, n))
+    full[:, np.triu_indices(n, 1)[0], np.triu_indices(n, 1)[1]] = stacked
+    full = full.reshape(stacked.shape[0], -1)  # upper triangle only: the block holds the full matrix
     for block in _permuted_observations(ra, permutations, seed):
-        plain, partial = statistics_of(block @ stacked.T)
+        plain, partial = statistics_of(block @ full.T)
         plain_count += (plain >= plain_obs - 1e-12).sum(axis=0)
         if partial is not None:
             partial_count += (partial >= partial_obs - 1e-12).sum(axis=0)
@@ -249,16 +255,22 @@ def bootstrap_values(observed, metrics: Sequence, *, resamples: int = 1000, seed
     x = _centered_ranks(a)
     scale = max(1.0, float(np.abs(x).max()))
     x, ys = x / scale, ys / scale
-    features = np.vstack([np.ones_like(x), x, x * x, ys, ys * ys, ys * x]).T
+    features = np.vstack([np.ones_like(x), x, x * x, ys, ys * ys, ys * x])
+    full = np.zeros((features.shape[0], n, n))
     i, j = np.triu_indices(n, 1)
+    full[:, i, j] = features
+    full += full.transpose(0, 2, 1)
+    # a sum over pairs of distinct materials weighted c_i c_j is the quadratic form c' F c / 2
+    full = full.transpose(1, 0, 2).reshape(n, -1)
     rng = np.random.default_rng(seed)
     m = ys.shape[0]
     out = np.empty((int(resamples), m))
     done = 0
     while done < int(resamples):
-        block = min(BLOCK, int(resamples) - done)
+        block = min(BLOCK * 4, int(resamples) - done)
         counts = np.stack([np.bincount(rng.integers(0, n, size=n), minlength=n) for _ in range(block)])
-        sums = (counts[:, i] * counts[:, j]).astype(np.float64) @ features
+        counts = counts.astype(np.float64)
+        sums = np.einsum("bkn,bn->bk", (counts @ full).reshape(block, -1, n), counts) / 2
         total, sx, sxx = sums[:, :1], sums[:, 1:2], sums[:, 2:3]
         sy, syy, sxy = sums[:, 3:3 + m], sums[:, 3 + m:3 + 2 * m], sums[:, 3 + 2 * m:]
         with np.errstate(invalid="ignore", divide="ignore"):

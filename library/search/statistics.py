@@ -22,31 +22,26 @@ def _p_values(p_values) -> np.ndarray:
     return p
 
 
-def holm(p_values) -> np.ndarray:
-    """Holm-adjusted p-values, in the order given: p_(i) * (m - i + 1), made monotone and capped at 1."""
+def _step(p_values, adjust) -> np.ndarray:
+    """Apply ``adjust`` to the sorted p-values and return the result in the order given."""
     p = _p_values(p_values)
-    m = p.size
-    if m == 0:
+    if p.size == 0:
         return p
     order = np.argsort(p, kind="stable")
-    adjusted = np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * p[order]))
-    out = np.empty(m)
-    out[order] = adjusted
+    out = np.empty(p.size)
+    out[order] = adjust(p[order], p.size)
     return out
+
+
+def holm(p_values) -> np.ndarray:
+    """Holm-adjusted p-values, in the order given: p_(i) * (m - i + 1), made monotone and capped at 1."""
+    return _step(p_values, lambda p, m: np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * p)))
 
 
 def benjamini_hochberg(p_values) -> np.ndarray:
     """Benjamini-Hochberg adjusted p-values, in the order given: min over j >= i of p_(j) * m / j, capped at 1."""
-    p = _p_values(p_values)
-    m = p.size
-    if m == 0:
-        return p
-    order = np.argsort(p, kind="stable")
-    scaled = p[order] * m / np.arange(1, m + 1)
-    adjusted = np.minimum(1.0, np.minimum.accumulate(scaled[::-1])[::-1])
-    out = np.empty(m)
-    out[order] = adjusted
-    return out
+    return _step(p_values, lambda p, m: np.minimum(
+        1.0, np.minimum.accumulate((p * m / np.arange(1, m + 1))[::-1])[::-1]))
 
 
 def partial_correlation(x, y, controls) -> float:
