@@ -45,6 +45,7 @@ from scipy.stats import rankdata
 
 from library.search import statistics
 
+TOLERANCE = 1e-5  # a permuted correlation this close to the observed one counts as reaching it
 BLOCK = 16  # permutations or resamples handled per matrix product
 
 
@@ -157,7 +158,7 @@ def _permuted_observations(rank_matrix: np.ndarray, permutations: int, seed: int
     done = 0
     while done < permutations:
         block = min(BLOCK, permutations - done)
-        out = np.empty((block, n * n))
+        out = np.empty((block, n * n), rank_matrix.dtype)
         for b in range(block):
             inverse = np.argsort(rng.permutation(n))
             out[b] = np.take(np.take(rank_matrix, inverse, axis=0), inverse, axis=1).ravel()
@@ -205,18 +206,21 @@ def mantel_tests(observed, metrics: Sequence, *, controls: Sequence = (), permut
             partial[:, residual_norm < 1e-9 * np.maximum(y_norm, 1)] = np.nan  # a metric that is a control
         return plain, partial
 
+    # single precision halves the memory traffic of the gathers; ranks are exact in float32 below 2**23
+    # pairs, and sums of products carry a relative error near 1e-6, hence the tolerance of the counts
+    ra32 = ra.astype(np.float32)
     plain_obs, partial_obs = statistics_of((stacked @ x)[None, :])
     plain_count = np.zeros(m)
     partial_count = np.zeros(m)
     n = a.shape[0]
     full = np.zeros((stacked.shape[0], n, n))
     full[:, np.triu_indices(n, 1)[0], np.triu_indices(n, 1)[1]] = stacked
-    full = full.reshape(stacked.shape[0], -1)  # upper triangle only: the block holds the full matrix
-    for block in _permuted_observations(ra, permutations, seed):
-        plain, partial = statistics_of(block @ full.T)
-        plain_count += (plain >= plain_obs - 1e-12).sum(axis=0)
+    full = full.reshape(stacked.shape[0], -1).astype(np.float32)  # upper triangle only
+    for block in _permuted_observations(ra32, permutations, seed):
+        plain, partial = statistics_of((block @ full.T).astype(np.float64))
+        plain_count += (plain >= plain_obs - TOLERANCE).sum(axis=0)
         if partial is not None:
-            partial_count += (partial >= partial_obs - 1e-12).sum(axis=0)
+            partial_count += (partial >= partial_obs - TOLERANCE).sum(axis=0)
     out = []
     for i in range(m):
         r = float(plain_obs[0, i])
@@ -317,8 +321,9 @@ def bootstrap_interval(
     return bootstrap_intervals(observed, [metric], resamples=resamples, confidence=confidence, seed=seed)[0]
 
 
-def paired_permutation_p(observed, metric, other, *, permutations: int = 999, seed: int = 0) -> tuple[float, float]:
-    """(Spearman r of metric minus that of other, two-sided permutation p) over the same pairs.
+def paired_permutation_tests(observed, metric, others: Sequence, *, permutations: int = 999,
+                             seed: int = 0) -> list[tuple[float, float]]:
+    """(Spearman r of metric minus that of each other metric, two-sided permutation p), sharing the draws.
 
     Null: the two metrics are exchangeable. Each permutation swaps the two metrics' (normalized)
     pair ranks for every pair of each material picked by a fair coin, so a pair is swapped when
@@ -328,25 +333,36 @@ def paired_permutation_p(observed, metric, other, *, permutations: int = 999, se
     n = a.shape[0]
     permutations = _positive_count(permutations)
     x = _centered_ranks(a)
-    y1 = _centered_ranks(_square(metric, "metric", n))
-    y2 = _centered_ranks(_square(other, "other", n))
-    norms = [np.sqrt(v @ v) for v in (x, y1, y2)]
-    if min(norms) == 0:
-        return float("nan"), float("nan")
-    w = np.zeros((n, n))
-    w[np.triu_indices(n, 1)] = x * (y1 / norms[1] - y2 / norms[2]) / norms[0]
-    w = w + w.T
-    observed_difference = float(w.sum() / 2)
+    lead = _centered_ranks(_square(metric, "metric", n))
+    ranked = [_centered_ranks(_square(o, "other", n)) for o in others]
+    i, j = np.triu_indices(n, 1)
+    weights = np.zeros((len(ranked), n, n))
+    differences = []
+    for k, y in enumerate(ranked):
+        norms = [np.sqrt(v @ v) for v in (x, lead, y)]
+        if min(norms) == 0:
+            differences.append(float("nan"))
+            continue
+        weights[k, i, j] = x * (lead / norms[1] - y / norms[2]) / norms[0]
+        differences.append(float(weights[k].sum()))
+    weights += weights.transpose(0, 2, 1)
+    stacked = weights.transpose(1, 0, 2).reshape(n, -1)
     rng = np.random.default_rng(seed)
-    count = 0
+    counts = np.zeros(len(ranked))
     done = 0
     while done < permutations:
         block = min(BLOCK * 4, permutations - done)
         signs = rng.choice(np.array([-1.0, 1.0]), size=(block, n))
-        values = np.einsum("bi,bi->b", signs @ w, signs) / 2
-        count += int((np.abs(values) >= abs(observed_difference) - 1e-12).sum())
+        values = np.einsum("bkn,bn->bk", (signs @ stacked).reshape(block, -1, n), signs) / 2
+        counts += (np.abs(values) >= np.abs(differences) - TOLERANCE).sum(axis=0)
         done += block
-    return observed_difference, (count + 1) / (permutations + 1)
+    return [(d, float((c + 1) / (permutations + 1)) if np.isfinite(d) else float("nan"))
+            for d, c in zip(differences, counts)]
+
+
+def paired_permutation_p(observed, metric, other, *, permutations: int = 999, seed: int = 0) -> tuple[float, float]:
+    """(Spearman r of metric minus that of other, two-sided permutation p); see :func:`paired_permutation_tests`."""
+    return paired_permutation_tests(observed, metric, [other], permutations=permutations, seed=seed)[0]
 
 
 def precision_at_k(metric, relevant, k: int = 5) -> float:
@@ -464,15 +480,13 @@ def _compare_leader(observed, squares, scores, values, *, confidence, permutatio
     leader = max(finite, key=lambda s: s.spearman)
     names = list(squares)
     lead = names.index(leader.metric)
+    rest = [s.metric for s in finite if s.metric != leader.metric]
+    tests = paired_permutation_tests(observed, squares[leader.metric], [squares[r] for r in rest],
+                                     permutations=permutations, seed=seed)
     found = []
-    for s in finite:
-        if s.metric == leader.metric:
-            continue
-        other = names.index(s.metric)
-        difference, p = paired_permutation_p(observed, squares[leader.metric], squares[s.metric],
-                                             permutations=permutations, seed=seed)
-        low, high = _percentiles(values[:, lead] - values[:, other], confidence)
-        found.append((leader.metric, s.metric, difference, low, high, p))
+    for name, (difference, p) in zip(rest, tests):
+        low, high = _percentiles(values[:, lead] - values[:, names.index(name)], confidence)
+        found.append((leader.metric, name, difference, low, high, p))
     holm = statistics.holm([f[5] for f in found])
     return [MetricComparison(*f, p_holm=float(q)) for f, q in zip(found, holm)]
 
