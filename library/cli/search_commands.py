@@ -11,7 +11,7 @@ from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
-from library.search import metrics
+from library.search import metrics, scorecard
 from library.search.disagreement_policy import find_disagreement_rows
 from library.search.disagreements import DIRECTIONS
 from library.search.evidence import run_scorecard
@@ -231,17 +231,31 @@ def cmd_observations(args) -> int:
 
 def cmd_scorecard(args) -> int:
     catalogue = open_catalogue(args)
-    scores, label, notes = run_scorecard(
+    report, label, notes = run_scorecard(
         catalogue, observation=args.observed, k=args.k, permutations=args.permutations,
         resamples=args.resamples, weight=args.weight, vibration_engine=args.engine)
-    rows = [{"metric": s.metric, "materials": s.materials, "pairs": s.pairs, "spearman": round(s.spearman, 4),
-             "mantel_p": round(s.mantel_p, 4), "ci_low": round(s.ci_low, 4), "ci_high": round(s.ci_high, 4),
-             f"precision_at_{s.k}": None if s.precision_at_k is None else round(s.precision_at_k, 4)}
-            for s in scores]
+    data = scorecard.report_json(report)
+    if args.format == "json":
+        json.dump({"observed": label, **data, "notes": notes}, sys.stdout, indent=2)
+        print()
+        return 0
+    k = report.scores[0].k
+    rows = [{"metric": m["metric"], "materials": m["materials"], "pairs": m["pairs"], "spearman": m["spearman"],
+             "mantel_p": m["mantel_p"], "mantel_p_holm": m["mantel_p_holm"], "ci_low": m["ci_low"],
+             "ci_high": m["ci_high"], "partial_r": m["partial_r"], "partial_p": m["partial_p"],
+             "partial_p_holm": m["partial_p_holm"], f"precision_at_{k}": m["precision_at_k"],
+             f"chance_at_{k}": m["chance_at_k"], "lift": m["lift_at_k"]} for m in data["metrics"]]
     if args.format == "table":
+        controls = ", ".join(next((s.controls for s in report.scores if s.controls), ())) or "nothing"
         print(f"observed similarity: {label}; Spearman over pairs, one-sided Mantel p "
-              f"({args.permutations} permutations), {int(scores[0].confidence * 100)} % bootstrap interval")
+              f"({args.permutations} permutations), {int(report.scores[0].confidence * 100)} % bootstrap interval; "
+              f"partial Mantel controls for {controls}; p-values adjusted by Holm over each column; chance: "
+              f"expected precision at {k} under random neighbors")
     emit(rows, list(rows[0]), args.format)
+    if args.format == "table":
+        print()
+        for line in report.summary:
+            print(line)
     for note in notes:
         print(f"note: {note}", file=sys.stderr)
     return 0

@@ -519,3 +519,29 @@ def summarize(scores: list[MetricScore], comparisons: list[MetricComparison], *,
 def score_metrics(metrics: Mapping[str, np.ndarray], **options) -> list[MetricScore]:
     """One :class:`MetricScore` per metric, in the order given (see :func:`score_report` for the options)."""
     return score_report(metrics, **options).scores
+
+
+def _rounded(value) -> float | None:
+    return None if value is None or not np.isfinite(value) else round(float(value), 4)
+
+
+def score_json(score: MetricScore) -> dict:
+    """One metric's figures as plain JSON values (NaN as None, 4 decimals)."""
+    return {"metric": score.metric, "materials": score.materials, "pairs": score.pairs,
+            "spearman": _rounded(score.spearman), "mantel_p": _rounded(score.mantel_p),
+            "mantel_p_holm": _rounded(score.mantel_p_holm), "permutations": score.permutations,
+            "ci_low": _rounded(score.ci_low), "ci_high": _rounded(score.ci_high), "confidence": score.confidence,
+            "controls": list(score.controls), "partial_r": _rounded(score.partial_r),
+            "partial_p": _rounded(score.partial_p), "partial_p_holm": _rounded(score.partial_p_holm),
+            "k": score.k, "precision_at_k": _rounded(score.precision_at_k),
+            "chance_at_k": _rounded(score.chance_at_k), "lift_at_k": _rounded(score.lift_at_k)}
+
+
+def report_json(report: Scorecard) -> dict:
+    """The whole scorecard as plain JSON values: metrics, paired comparisons, adjustment and summary."""
+    return {"metrics": [score_json(s) for s in report.scores],
+            "comparisons": [{"metric": c.metric, "other": c.other, "difference": _rounded(c.difference),
+                             "ci_low": _rounded(c.ci_low), "ci_high": _rounded(c.ci_high), "p": _rounded(c.p),
+                             "p_holm": _rounded(c.p_holm)} for c in report.comparisons],
+            "adjustment": f"{report.adjustment} (family-wise, over the p-values of one column)",
+            "summary": report.summary}
