@@ -309,3 +309,29 @@ def test_score_report_controls_structure_and_summarizes():
     assert all(c.p_holm >= c.p for c in report.comparisons)
     assert any("structure" in line and "Holm" in line for line in report.summary)
     assert by["noise"].chance_at_k == by["shape"].chance_at_k
+
+
+def test_sides_with_tally_expectation_matches_brute_force_shuffles():
+    from library.search.disagreements import SHAPE_NOT_VIBRATION, VIBRATION_NOT_SHAPE, Disagreement, \
+        sides_with_tally
+
+    def pair(direction, observed):
+        return Disagreement(id_a=1, id_b=2, direction=direction, score=0.5, shape=0.9, vibration=0.1,
+                            structure=None, shape_rank=None, vibration_rank=None, observed=observed)
+
+    values = [0.0, 0.0, 0.1, 0.6, 0.9, 0.3]
+    directions = [SHAPE_NOT_VIBRATION] * 4 + [VIBRATION_NOT_SHAPE] * 2
+    pairs = [pair(d, v) for d, v in zip(directions, values)] + [pair(SHAPE_NOT_VIBRATION, None)]
+    tally = sides_with_tally(pairs, permutations=2000, seed=0)
+    # by hand: shape-not-vibration pairs observed 0, 0, 0.1 (unalike) side with vibration, 0.6 with shape;
+    # vibration-not-shape 0.9 sides with vibration, 0.3 with neither
+    assert (tally.observed_pairs, tally.shape, tally.vibration, tally.neither) == (6, 1, 4, 1)
+    # brute-force reference: the mean over all 6! orderings of the observed values
+    shape_counts = []
+    for order in itertools.permutations(values):
+        shape_counts.append(sum((d == SHAPE_NOT_VIBRATION and v >= 0.5) or (d == VIBRATION_NOT_SHAPE and v <= 0.2)
+                                for d, v in zip(directions, order)))
+    assert tally.expected_shape == pytest.approx(np.mean(shape_counts))
+    exact_p = np.mean(np.array(shape_counts) >= 1)
+    assert tally.p_shape == pytest.approx(exact_p, abs=5 * np.sqrt(0.25 / 2000) + 1 / 2000)
+    assert sides_with_tally([pair(SHAPE_NOT_VIBRATION, None)]) is None

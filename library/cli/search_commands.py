@@ -13,7 +13,7 @@ from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
 from library.search import metrics, scorecard
 from library.search.disagreement_policy import find_disagreement_rows
-from library.search.disagreements import DIRECTIONS
+from library.search.disagreements import DIRECTIONS, sides_with_tally, tally_lines
 from library.search.evidence import run_scorecard
 from library.search.pairs import compare
 from library.search.spectra import material_spectrum
@@ -187,6 +187,8 @@ def cmd_disagreements(args) -> int:
     if args.format == "table":
         print(f"{len(rows)} pair(s) found, {len(table)} shown"
               + (f"; observed similarity: {label}" if label else ""))
+        for line in tally_lines(sides_with_tally([r.pair for r in rows])):
+            print(line)
     return 0
 
 
