@@ -235,7 +235,7 @@ def cmd_scorecard(args) -> int:
     catalogue = open_catalogue(args)
     report, label, notes = run_scorecard(
         catalogue, observation=args.observed, k=args.k, permutations=args.permutations,
-        resamples=args.resamples, weight=args.weight, vibration_engine=args.engine)
+        resamples=args.resamples, weight=args.weight, vibration_engine=args.engine, control_size=args.control_size)
     data = scorecard.report_json(report)
     if args.format == "json":
         json.dump({"observed": label, **data, "notes": notes}, sys.stdout, indent=2)
@@ -387,5 +387,7 @@ def register(commands) -> None:
     p.add_argument("-k", type=int, default=5, help="k of precision at k (default 5)")
     p.add_argument("--permutations", type=int, default=999)
     p.add_argument("--resamples", type=int, default=1000)
+    p.add_argument("--control-size", action="store_true",
+                   help="the partial Mantel test also controls for molecular size (closeness of molecular weight)")
     _add_common(p)
     p.set_defaults(handler=cmd_scorecard)
