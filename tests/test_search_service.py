@@ -173,8 +173,9 @@ def test_flags_and_observations_feed_the_scorecard(searchable, index, tmp_path):
             session, "\n".join(lines).encode(), "panel.csv", set_name="demo panel", kind="panel profile",
             source="demo")
     assert report.stored and report.values == 32
-    scores, label, _ = evidence.run_scorecard(catalogue, observation="demo panel", permutations=99,
-                                             resamples=99, k=2, cat_index=index)
+    report, label, _ = evidence.run_scorecard(catalogue, observation="demo panel", permutations=99,
+                                              resamples=99, k=2, cat_index=index)
+    scores = report.scores
     assert [s.metric for s in scores] == list(metrics.names(indexed=True))
     for s in scores:
         assert -1 <= s.spearman <= 1 and 0 < s.mantel_p <= 1 and s.ci_low <= s.ci_high and s.materials == 8

@@ -239,6 +239,11 @@ def test_disagreements_list_both_telling_pairs_with_basis_and_observations(reade
     page = reader.get("/disagreements").text
     assert "indistinguishable by shape" in page and "Benzaldehyde-d6 (demo)" in page
     assert all(word in page for word in CAUTION_WORDS)
+    observed_rows = [r for r in body["rows"] if r["observed"] is not None]
+    if body["total"] == len(body["rows"]):  # the whole list is on this page: its tally must match the rows
+        shape = sum(r["sides_with"] == "shape" for r in observed_rows)
+        assert f"Of {len(observed_rows)} listed pair(s) with an observation, {shape} side with shape" in page
+    assert 'id="sides-tally"' in page and "Shuffling the observations" in page
     only_one_way = reader.get("/api/disagreements?direction=vibration-not-shape&per_page=200").get_json()["rows"]
     assert only_one_way and {r["direction"] for r in only_one_way} == {"vibration-not-shape"}
     unobserved = reader.get("/api/disagreements?observation=none").get_json()
@@ -361,7 +366,14 @@ def test_scorecard_page_and_api(reader):
         assert 1 / 20 <= m["mantel_p"] <= 1  # (1 + count) / (1 + permutations)
         assert m["pairs"] == m["materials"] * (m["materials"] - 1) // 2 and m["k"] == 3
         assert f'{m["spearman"]:.3f}' in page.text
+        if m["metric"] != "structure":  # the partial Mantel test controls for 2D structure
+            assert m["controls"] == ["structure"] and m["partial_p_holm"] >= m["partial_p"]
+        # chance baseline: relevant partners / (n - 1), so below 1 and the lift is precision over it
+        assert 0 < m["chance_at_k"] < 1 and m["lift_at_k"] == pytest.approx(m["precision_at_k"] / m["chance_at_k"],
+                                                                            abs=2e-3)
     assert body["observed"] == "odor descriptor Jaccard"
+    assert body["adjustment"].startswith("Holm") and body["summary"] and body["comparisons"]
+    assert 'id="scorecard-summary"' in page.text and "Holm" in page.text
 
 
 @pytest.mark.parametrize("arguments, message", [

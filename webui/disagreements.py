@@ -10,7 +10,7 @@ from flask_login import current_user
 
 from library.catalogue import curation, observations
 from library.errors import OlibraError
-from library.search.disagreements import DIRECTIONS
+from library.search.disagreements import DIRECTIONS, sides_with_tally, tally_lines
 from webui import explore, write_transaction
 from webui.errors import user_message
 
@@ -27,6 +27,7 @@ COLUMNS = [("direction", "Direction"), ("basis", "Basis"), ("a", "Material A"), 
 @blueprint.get("/disagreements")
 def index():
     error = rows = label = used = None
+    tally: list[str] = []
     page = pages = 1
     sort, order = request.args.get("sort", "rank"), request.args.get("order", "asc")
     sources = []
@@ -42,6 +43,7 @@ def index():
             used = explore.thresholds_used(asked)
             ordered = explore.sort_rows(found, sort, order)
             total = len(ordered)
+            tally = tally_lines(sides_with_tally([r.pair for r in ordered]))
             page, pages = explore.page_argument(request.args, total, explore.DISAGREEMENTS_PER_PAGE)
             start = (page - 1) * explore.DISAGREEMENTS_PER_PAGE
             rows = ordered[start:start + explore.DISAGREEMENTS_PER_PAGE]
@@ -50,7 +52,7 @@ def index():
     return render_template(
         "disagreements/index.html", asked=asked, rows=rows, label=label, used=used, error=error, total=total, page=page,
         pages=pages, sort=sort, order=order, columns=COLUMNS, directions=DIRECTIONS, sources=sources,
-        flag_kinds=observations.FLAG_KINDS, link=_link, here=request.full_path.rstrip("?")), 400 if error else 200
+        flag_kinds=observations.FLAG_KINDS, tally=tally, link=_link, here=request.full_path.rstrip("?")), 400 if error else 200
 
 
 def _link(endpoint: str = "disagreements.index", **changes) -> str:

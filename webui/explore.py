@@ -397,7 +397,7 @@ def scorecard_request(args) -> ScorecardRequest:
 
 
 def run_scorecard(request: ScorecardRequest):
-    """(list of MetricScore, observed label, notes), memoized per catalogue revision and arguments."""
+    """(scorecard.Scorecard, observed label, notes), memoized per catalogue revision and arguments."""
     def work():
         cat_index, _ = search_index()
         return evidence.run_scorecard(web_state().catalogue, observation=request.observation, k=request.k,
@@ -407,18 +407,6 @@ def run_scorecard(request: ScorecardRequest):
     def compute():
         return heavy("the scorecard", work, key=("scorecard", request, search_index()[1]))
     return web_state().index_cache.memo(("scorecard", request), compute)
-
-
-def metric_score_json(score) -> dict:
-    return {"metric": score.metric, "materials": score.materials, "pairs": score.pairs,
-            "spearman": _finite(score.spearman), "mantel_p": _finite(score.mantel_p),
-            "permutations": score.permutations, "ci_low": _finite(score.ci_low), "ci_high": _finite(score.ci_high),
-            "confidence": score.confidence, "k": score.k,
-            "precision_at_k": _finite(score.precision_at_k)}
-
-
-def _finite(value: float | None) -> float | None:
-    return None if value is None or not math.isfinite(value) else round(value, 4)
 
 
 # ---------------------------------------------------------------- CSV

@@ -13,7 +13,7 @@ blueprint = Blueprint("scorecard", __name__)
 
 @blueprint.get("/scorecard")
 def index():
-    error = scores = label = chart = None
+    error = scores = report = label = chart = None
     notes: list[str] = []
     sources = []
     try:
@@ -23,10 +23,11 @@ def index():
         asked, error = explore.ScorecardRequest(), user_message(exc)
     if error is None and explore.flag_argument(request.args, "run"):
         try:
-            scores, label, notes = explore.run_scorecard(asked)
+            report, label, notes = explore.run_scorecard(asked)
+            scores = report.scores
             chart = charts.scorecard_svg(scores)
         except OlibraError as exc:
             error = user_message(exc)
-    return render_template("scorecard/index.html", asked=asked, scores=scores, label=label, notes=notes,
+    return render_template("scorecard/index.html", asked=asked, scores=scores, report=report, label=label, notes=notes,
                            chart=chart, error=error, sources=sources,
                            defaults=explore.SCORECARD_DEFAULTS), 400 if error else 200

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from flask import Blueprint, jsonify, request
 
+from library.search import scorecard as scorecard_figures
 from library.search.substitutes import CAUTION
 from webui import db_session, explore, queries
 from webui.api import OPTIONAL_TEXT, TEXT, json_body
@@ -64,8 +65,8 @@ def disagreements():
 @blueprint.get("/scorecard")
 def scorecard():
     asked = explore.scorecard_request(request.args)
-    scores, label, notes = explore.run_scorecard(asked)
-    return jsonify(observed=label, metrics=[explore.metric_score_json(s) for s in scores], notes=notes,
+    report, label, notes = explore.run_scorecard(asked)
+    return jsonify(observed=label, **scorecard_figures.report_json(report), notes=notes,
                    permutations=asked.permutations, resamples=asked.resamples)
 
 

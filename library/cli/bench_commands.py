@@ -109,7 +109,15 @@ def _oversampling(text: str) -> float:
     return value
 
 
-BENCHES = {"index": cmd_bench_index, "compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
+def cmd_bench_scorecard(args) -> int:
+    from benchmarks import scorecard
+
+    _header("scorecard", None)
+    scorecard.run(materials=args.materials)
+    return 0
+
+
+BENCHES = {"index": cmd_bench_index, "scorecard": cmd_bench_scorecard, "compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
             "web": cmd_bench_web, "load": cmd_bench_load, "startup": cmd_bench_startup}
 
 
@@ -134,6 +142,8 @@ def register(commands) -> None:
     p.add_argument("--oversampling", type=_oversampling, default=None,
                    help="ensembles: embeddings per kept conformer to try instead of the product's setting "
                         "(measures what a more thorough search buys and costs)")
+    p.add_argument("--materials", type=int, default=1000,
+                   help="scorecard: materials in the synthetic catalogue (default 1000)")
     p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
     p.add_argument("--skip-catalogue", action="store_true",
                    help="search: skip the recall figure on the real catalogue (--db, with computed records)")

@@ -11,9 +11,9 @@ from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
-from library.search import metrics
+from library.search import metrics, scorecard
 from library.search.disagreement_policy import describe_thresholds, find_disagreement_rows, resolved_thresholds
-from library.search.disagreements import DIRECTIONS
+from library.search.disagreements import DIRECTIONS, sides_with_tally, tally_lines
 from library.search.evidence import run_scorecard
 from library.search.pairs import compare
 from library.search.spectra import material_spectrum
@@ -193,6 +193,8 @@ def cmd_disagreements(args) -> int:
         print(f"{len(rows)} pair(s) found, {len(table)} shown"
               + (f"; observed similarity: {label}" if label else ""))
         print(f"thresholds: {used}")
+        for line in tally_lines(sides_with_tally([r.pair for r in rows])):
+            print(line)
     return 0
 
 
@@ -237,17 +239,31 @@ def cmd_observations(args) -> int:
 
 def cmd_scorecard(args) -> int:
     catalogue = open_catalogue(args)
-    scores, label, notes = run_scorecard(
+    report, label, notes = run_scorecard(
         catalogue, observation=args.observed, k=args.k, permutations=args.permutations,
-        resamples=args.resamples, weight=args.weight, vibration_engine=args.engine)
-    rows = [{"metric": s.metric, "materials": s.materials, "pairs": s.pairs, "spearman": round(s.spearman, 4),
-             "mantel_p": round(s.mantel_p, 4), "ci_low": round(s.ci_low, 4), "ci_high": round(s.ci_high, 4),
-             f"precision_at_{s.k}": None if s.precision_at_k is None else round(s.precision_at_k, 4)}
-            for s in scores]
+        resamples=args.resamples, weight=args.weight, vibration_engine=args.engine, control_size=args.control_size)
+    data = scorecard.report_json(report)
+    if args.format == "json":
+        json.dump({"observed": label, **data, "notes": notes}, sys.stdout, indent=2)
+        print()
+        return 0
+    k = report.scores[0].k
+    rows = [{"metric": m["metric"], "materials": m["materials"], "pairs": m["pairs"], "spearman": m["spearman"],
+             "mantel_p": m["mantel_p"], "mantel_p_holm": m["mantel_p_holm"], "ci_low": m["ci_low"],
+             "ci_high": m["ci_high"], "partial_r": m["partial_r"], "partial_p": m["partial_p"],
+             "partial_p_holm": m["partial_p_holm"], f"precision_at_{k}": m["precision_at_k"],
+             f"chance_at_{k}": m["chance_at_k"], "lift": m["lift_at_k"]} for m in data["metrics"]]
     if args.format == "table":
+        controls = ", ".join(next((s.controls for s in report.scores if s.controls), ())) or "nothing"
         print(f"observed similarity: {label}; Spearman over pairs, one-sided Mantel p "
-              f"({args.permutations} permutations), {int(scores[0].confidence * 100)} % bootstrap interval")
+              f"({args.permutations} permutations), {int(report.scores[0].confidence * 100)} % bootstrap interval; "
+              f"partial Mantel controls for {controls}; p-values adjusted by Holm over each column; chance: "
+              f"expected precision at {k} under random neighbors")
     emit(rows, list(rows[0]), args.format)
+    if args.format == "table":
+        print()
+        for line in report.summary:
+            print(line)
     for note in notes:
         print(f"note: {note}", file=sys.stderr)
     return 0
@@ -378,5 +394,7 @@ def register(commands) -> None:
     p.add_argument("-k", type=int, default=5, help="k of precision at k (default 5)")
     p.add_argument("--permutations", type=int, default=999)
     p.add_argument("--resamples", type=int, default=1000)
+    p.add_argument("--control-size", action="store_true",
+                   help="the partial Mantel test also controls for molecular size (closeness of molecular weight)")
     _add_common(p)
     p.set_defaults(handler=cmd_scorecard)

@@ -266,3 +266,70 @@ def _observed(observed, id_a, id_b) -> float | None:
     if not np.isfinite(value):
         raise ValueError(f"observed similarity for ({id_a!r}, {id_b!r}) is not finite: {value!r}")
     return value
+
+
+@dataclass(frozen=True)
+class SidesTally:
+    """How many listed pairs side with each metric, and what a null keeping the observations expects.
+
+    Null: the observed similarities of the listed pairs are shuffled over those pairs (so their
+    distribution, and the base rate of pairs observed at about 0, is kept); ``expected_*`` is the exact
+    mean under that shuffle and ``p_*`` the one-sided permutation p of a count at least as large.
+    """
+
+    observed_pairs: int
+    shape: int
+    vibration: int
+    neither: int
+    expected_shape: float
+    expected_vibration: float
+    p_shape: float
+    p_vibration: float
+    permutations: int
+
+
+def sides_with_tally(pairs, *, observed_alike: float = 0.5, observed_unalike: float = 0.2,
+                     permutations: int = 999, seed: int = 0) -> SidesTally | None:
+    """Tally of ``sides_with`` over the pairs (Disagreement) that carry an observation; None if none do."""
+    listed = [p for p in pairs if p.observed is not None]
+    if not listed:
+        return None
+    if int(permutations) < 1:
+        raise ValueError(f"permutations must be a positive integer, got {permutations!r}")
+    says_shape = np.array([p.direction == SHAPE_NOT_VIBRATION for p in listed])
+    values = np.array([p.observed for p in listed], dtype=np.float64)
+
+    def counts(v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        alike, unalike = v >= observed_alike, v <= observed_unalike
+        shape = (says_shape & alike) | (~says_shape & unalike)
+        vibration = (~says_shape & alike) | (says_shape & unalike)
+        return shape.sum(axis=-1), vibration.sum(axis=-1)
+
+    shape, vibration = (int(c) for c in counts(values))
+    total = len(listed)
+    alike_share = np.mean(values >= observed_alike)
+    unalike_share = np.mean(values <= observed_unalike)
+    n_shape_dir = int(says_shape.sum())
+    expected_shape = alike_share * n_shape_dir + unalike_share * (total - n_shape_dir)
+    expected_vibration = alike_share * (total - n_shape_dir) + unalike_share * n_shape_dir
+    rng = np.random.default_rng(seed)
+    shuffled = np.array([rng.permutation(values) for _ in range(int(permutations))])
+    null_shape, null_vibration = counts(shuffled)
+    return SidesTally(
+        observed_pairs=total, shape=shape, vibration=vibration, neither=total - shape - vibration,
+        expected_shape=float(expected_shape), expected_vibration=float(expected_vibration),
+        p_shape=float((1 + (null_shape >= shape).sum()) / (1 + int(permutations))),
+        p_vibration=float((1 + (null_vibration >= vibration).sum()) / (1 + int(permutations))),
+        permutations=int(permutations))
+
+
+def tally_lines(tally: SidesTally | None) -> list[str]:
+    """Plain sentences for the tally (empty when no listed pair carries an observation)."""
+    if tally is None:
+        return []
+    return [f"Of {tally.observed_pairs} listed pair(s) with an observation, {tally.shape} side with shape and "
+            f"{tally.vibration} with vibration ({tally.neither} with neither).",
+            f"Shuffling the observations over these pairs keeps their base rate and expects "
+            f"{tally.expected_shape:.1f} for shape and {tally.expected_vibration:.1f} for vibration; one-sided "
+            f"permutation p {tally.p_shape:.4f} (shape) and {tally.p_vibration:.4f} (vibration), "
+            f"{tally.permutations} shuffles."]

@@ -21,9 +21,12 @@ def metric_matrices(index: SimilarityIndex, rows: np.ndarray, *, weight: float =
 
 def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, permutations: int = 999,
                   resamples: int = 1000, weight: float = 0.5, seed: int = 0, vibration_engine: str | None = None,
-                  cat_index: CatalogueIndex | None = None):
-    """How well each metric predicts observed similarity, side by side (list of MetricScore), the label
-    of the observed similarity and notes."""
+                  cat_index: CatalogueIndex | None = None, control_size: bool = False):
+    """How well each metric predicts observed similarity, side by side (a scorecard.Scorecard: scores,
+    paired comparisons, summary), the label of the observed similarity and notes.
+
+    The partial Mantel test controls for the structure metric and, with ``control_size``, also for
+    molecular size (closeness of molecular weight, g/mol: similarity -|MW_a - MW_b|)."""
     from library.catalogue import curation, observations
 
     if cat_index is None:
@@ -63,8 +66,10 @@ def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, perm
                 value = correlate(ids[x], ids[y])
                 observed[x, y] = observed[y, x] = 0.0 if value is None else value
     try:
-        scores = scorecard.score_metrics(matrices, observed=observed, descriptor_sets=descriptor_sets,
+        weights_g_mol = np.array([cat_index.materials[i].molecular_weight for i in ids], dtype=np.float64)
+        extra = {"molecular size": -np.abs(weights_g_mol[:, None] - weights_g_mol[None, :])} if control_size else None
+        report = scorecard.score_report(matrices, extra_controls=extra, observed=observed, descriptor_sets=descriptor_sets,
                                          permutations=permutations, resamples=resamples, k=k, seed=seed)
     except ValueError as exc:
         raise SearchError(str(exc)) from None
-    return scores, label, notes
+    return report, label, notes

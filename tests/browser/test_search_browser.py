@@ -133,6 +133,8 @@ def test_scorecard_runs_and_draws(curator_page, expect, screenshot):
     expect(page.locator("table.scorecard-table tbody tr")).to_have_count(len(metrics.names(indexed=True)))
     expect(page.locator("svg.scorecard")).to_be_visible()
     expect(page.locator("#results h2")).to_contain_text("odor descriptor Jaccard")
+    expect(page.locator("#scorecard-summary")).to_contain_text("agrees best with the observations")
+    expect(page.locator("table.scorecard-table thead")).to_contain_text("Chance")
     screenshot(page, "scorecard")
     page.goto("/materials/1")
     expect(page.locator("svg.spectrum g.band").first).to_be_attached()
