@@ -32,15 +32,17 @@ import numpy as np
 
 # Built-in functional-group swaps: (name, reaction SMARTS, description). Each reaction is applied in
 # the direction written; a pair is in the class when one material's product is the other material.
+# Product atoms whose hydrogen count changes carry it explicitly ([CH0:1]): RDKit copies the count
+# of a mapped atom from the reactant otherwise, which breaks valences for bracket atoms like [C@H].
 BUILTIN_REACTIONS: tuple[tuple[str, str, str], ...] = (
-    ("aldehyde-nitrile", "[CX3H1:1](=O)[#6:2]>>[C:1](#N)[#6:2]", "aldehyde CHO replaced by nitrile CN"),
+    ("aldehyde-nitrile", "[CX3H1:1](=O)[#6:2]>>[CH0:1](#N)[#6:2]", "aldehyde CHO replaced by nitrile CN"),
     ("ester-ether", "[#6:1][CX3:2](=O)[OX2:3][#6:4]>>[#6:1][CH2:2][O:3][#6:4]",
      "ester carbonyl reduced to CH2 (ester -> ether)"),
-    ("alcohol-ketone", "[CX4H1:1]([#6:2])([#6:3])[OX2H1:4]>>[C:1]([#6:2])([#6:3])=[O:4]",
+    ("alcohol-ketone", "[CX4H1:1]([#6:2])([#6:3])[OX2H1:4]>>[CH0:1]([#6:2])([#6:3])=[OH0:4]",
      "secondary alcohol oxidised to ketone"),
     ("aldehyde-alcohol", "[CX3H1:1](=[O:2])[#6:3]>>[CH2:1]([OH1:2])[#6:3]", "aldehyde reduced to primary alcohol"),
-    ("alcohol-acetate", "[CX4:1][OX2H1:2]>>[C:1][O:2]C(C)=O", "alcohol acetylated to its acetate ester"),
-    ("aldehyde-acid", "[CX3H1:1](=[O:2])[#6:3]>>[C:1](=[O:2])([OH1])[#6:3]", "aldehyde oxidised to carboxylic acid"),
+    ("alcohol-acetate", "[CX4:1][OX2H1:2]>>[C:1][OH0:2]C(C)=O", "alcohol acetylated to its acetate ester"),
+    ("aldehyde-acid", "[CX3H1:1](=[O:2])[#6:3]>>[CH0:1](=[O:2])([OH1])[#6:3]", "aldehyde oxidised to carboxylic acid"),
 )
 STRUCTURAL_CLASSES = ("enantiomers", "isotopologues", "e-z")
 CATALOGUE_PAIRS = 20_000  # random catalogue pairs the class is set against (all pairs when fewer)
@@ -111,7 +113,7 @@ def _without_isotopes(mol):
     out = Chem.Mol(mol)
     for atom in out.GetAtoms():
         atom.SetIsotope(0)
-    return out
+    return Chem.RemoveHs(out)  # deuterium written as explicit atoms becomes implicit hydrogen
 
 
 def _without_double_bond_geometry(mol):
