@@ -87,11 +87,18 @@ def _percentile_ranks(values: np.ndarray) -> np.ndarray:
     return (rankdata(values) - 0.5) / values.size
 
 
+def _spearman(x: np.ndarray, y: np.ndarray) -> float:
+    """Spearman r, NaN when either side is constant (no ranking to compare)."""
+    from scipy.stats import spearmanr
+
+    if np.ptp(x) == 0 or np.ptp(y) == 0:
+        return float("nan")
+    return float(spearmanr(x, y).statistic)
+
+
 def cross_validate(pair_a: np.ndarray, pair_b: np.ndarray, features: np.ndarray, target: np.ndarray,
                    names: Sequence[str], *, folds: int = FOLDS, seed: int = 0) -> list[Fold]:
     """Grouped cross-validation of the non-negative blend against each single feature (see module)."""
-    from scipy.stats import spearmanr
-
     out = []
     for train, test in grouped_folds(np.concatenate([pair_a, pair_b]), folds, seed=seed):
         assert not set(train.tolist()) & set(test.tolist()), "a material is on both sides of a fold"
@@ -101,10 +108,9 @@ def cross_validate(pair_a: np.ndarray, pair_b: np.ndarray, features: np.ndarray,
             continue
         weights = fit_weights(features[fit_mask], _percentile_ranks(target[fit_mask]))
         held_out = features[test_mask]
-        scores = {"calibrated": float(spearmanr(held_out @ weights, target[test_mask]).statistic)
-                  if weights.any() else float("nan")}
+        scores = {"calibrated": _spearman(held_out @ weights, target[test_mask])}
         for column, name in enumerate(names):
-            scores[name] = float(spearmanr(held_out[:, column], target[test_mask]).statistic)
+            scores[name] = _spearman(held_out[:, column], target[test_mask])
         out.append(Fold(tuple(train.tolist()), tuple(test.tolist()), int(fit_mask.sum()), int(test_mask.sum()), scores))
     if not out:
         raise ValueError("no fold had 3 or more held-out pairs with observations; add observations")
