@@ -2,28 +2,14 @@
 
 from __future__ import annotations
 
-import shutil
-
 import pytest
 
-from library.catalogue.database import Catalogue
-from webui import create_app
-
-from web_helpers import READER, signed_in_client
+from web_helpers import READER, computed_app, signed_in_client
 
 
 @pytest.fixture
 def pairs_app(computed_template, tmp_path):
-    target = tmp_path / "catalogue.sqlite"
-    shutil.copyfile(computed_template, target)
-    catalogue = Catalogue(f"sqlite:///{target}")
-    app = create_app({"OLIBRA_DB": catalogue.url, "TESTING": True,
-                      "OLIBRA_INDEX_CACHE_DIR": str(tmp_path / "index-cache")})
-    yield app
-    catalogue.dispose()
-    state = app.extensions["olibra"]
-    if state._catalogue is not None:
-        state._catalogue.dispose()
+    yield from computed_app(computed_template, tmp_path)
 
 
 def test_pair_classes_page_lists_classes_and_tests_one(pairs_app):

@@ -437,6 +437,7 @@ class RankBlendMetric(Metric):
 
     fixed_weights: tuple[tuple[str, float], ...] = ()
     stale: bool = False
+    needs_index: bool = True  # scored only through a fitted index (percentiles of its catalogue pairs)
 
     def weights(self, weight: float) -> dict[str, float]:
         if self.fixed_weights:
