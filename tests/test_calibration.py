@@ -125,6 +125,10 @@ def test_pair_classes_calibrate_and_search_on_a_computed_catalogue(computed, cap
                           "-k", "3", "--format", "json")
     assert code == 0, err
     assert "stale" not in out
+    code, out, err = _run(capsys, "--db", computed, "scorecard", "--observed", "descriptors", "--format", "json",
+                          "--permutations", "99", "--resamples", "100")
+    assert code == 0, err
+    assert "calibrated-descriptors" in out and "in-sample" in err  # notes go to stderr
 
     catalogue = Catalogue(computed)
     from sqlalchemy import select

@@ -269,3 +269,31 @@ def as_json(calibration: Calibration) -> dict:
     out["cross_validation"] = ("grouped by material: weights fitted on pairs among training materials, "
                                "Spearman on pairs among held-out materials only")
     return out
+
+
+def scorecard_notes(catalogue, observation: str, metric_names) -> list[str]:
+    """What the scorecard must say beside a calibrated metric: fitted on these very observations (its
+    figure there is in-sample; the grouped cross-validated Spearman is the honest one), or stale."""
+    from sqlalchemy import select
+    from sqlalchemy.exc import OperationalError, ProgrammingError
+
+    from library.catalogue.models import CalibratedMetric
+    from library.search import metrics
+
+    try:
+        with catalogue.reading() as session:
+            rows = [(r.name, r.observed_source, json.loads(r.report_json))
+                    for r in session.scalars(select(CalibratedMetric)) if r.name in set(metric_names)]
+    except (OperationalError, ProgrammingError):
+        return []
+    notes = []
+    for name, source, report in rows:
+        cross = report.get("mean_spearman", {}).get("calibrated")
+        if source == observation:
+            notes.append(f"{name} was calibrated on these observations, so its figures here are in-sample; its "
+                         f"cross-validated Spearman (folds grouped by material) is {cross:.3f}")
+        else:
+            notes.append(f"{name} was calibrated on {source!r} (cross-validated Spearman {cross:.3f} there)")
+        if getattr(metrics.get(name), "stale", False):
+            notes.append(f"{name} is stale: its observations changed since it was calibrated")
+    return notes
