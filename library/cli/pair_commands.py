@@ -52,11 +52,12 @@ def cmd_pairs(args) -> int:
                 for c, pairs in pair_classes.list_classes(catalogue)]
         emit(rows, ["name", "pairs", "reaction", "description"], args.format)
         return 0
-    tests = pair_classes.run_tests(catalogue, [args.name], observed=args.observed, permutations=args.permutations)
+    names = None if args.name == "all" else [args.name]
+    tests = pair_classes.run_tests(catalogue, names, observed=args.observed, permutations=args.permutations)
     if args.format == "json":
         print(json.dumps(tests_json(tests), indent=2, default=str))
         return 0
-    emit(test_rows(tests), ["metric", "pairs", "class_median", "catalogue_median", "median_percentile",
+    emit(test_rows(tests), ["class", "metric", "pairs", "class_median", "catalogue_median", "median_percentile",
                             "mann_whitney_q", "observed_pairs", "gap", "gap_q", "agrees"], args.format)
     print(BH_NOTE)
     return 0
@@ -68,7 +69,7 @@ def register(commands) -> None:
     listing = actions.add_parser("classes", help="list pair classes and how many catalogue pairs each holds")
     listing.add_argument("--format", choices=FORMATS, default="table")
     test = actions.add_parser("test", help="how each metric scores a class, against the catalogue and observations")
-    test.add_argument("name", metavar="CLASS")
+    test.add_argument("name", metavar="CLASS", help="a class name, or 'all' (adjusted over every class x metric)")
     test.add_argument("--observed", default="descriptors", metavar="SET|descriptors",
                       help="observed similarity: odor descriptor Jaccard (default) or an observation set")
     test.add_argument("--permutations", type=int, default=999)
