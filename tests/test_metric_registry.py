@@ -32,8 +32,9 @@ def with_plain_usr(monkeypatch):
 
 def test_registered_metrics_and_their_definitions():
     assert metrics.names() == ("shape", "overlay", "handedness", "vibration", "vibration-ir", "vibration-window",
-                               "blend", "structure")
-    assert metrics.names(indexed=True) == ("shape", "vibration", "vibration-ir", "vibration-window", "blend", "structure")
+                               "blend", "blend-rank", "structure")
+    assert metrics.names(indexed=True) == ("shape", "vibration", "vibration-ir", "vibration-window", "blend",
+                                           "blend-rank", "structure")
     assert all(m.description for m in metrics.metrics())
     # the USR formula of J. Comput. Chem. 28, 1711 (2007): S = 1 / (1 + mean |a - b|)
     assert usr_similarity(2.0) == pytest.approx(1 / 3)
@@ -42,6 +43,25 @@ def test_registered_metrics_and_their_definitions():
         metrics.register(metrics.get("shape"))
     with pytest.raises(ValueError, match="must be one of"):
         metrics.get("smell")
+
+
+def test_rank_blend_mixes_catalogue_percentiles():
+    from scipy.stats import percentileofscore
+
+    ids, shape, fingerprints = bench.synthetic_catalogue(120, seed=3)
+    index = SimilarityIndex().fit(ids, shape, fingerprints)
+    a, b = np.triu_indices(index.size, 1)  # 7140 pairs: fewer than the sample, so every pair is the reference
+    every = index.pair_scores(a, b, weight=0.5)
+    pairs = index.pair_scores([1, 2, 3], [4, 5, 6], weight=0.5)
+    # reference: scipy.stats.percentileofscore (kind='mean', the mid-rank percentile) over all pairs
+    expected = {name: np.array([percentileofscore(every[name], v, kind="mean") / 100 for v in pairs[name]])
+                for name in ("shape", "vibration")}
+    assert pairs["blend-rank"] == pytest.approx(0.5 * expected["shape"] + 0.5 * expected["vibration"], abs=1e-5)
+    shape_only = index.pair_scores([1, 2, 3], [4, 5, 6], weight=1.0)["blend-rank"]
+    assert shape_only == pytest.approx(expected["shape"], abs=1e-5)
+    # an even mix: the percentiles of the rank blend's two parts have the same spread (uniform 0-1)
+    assert np.std(metrics.percentile_scores(index, "shape", every["shape"])) == pytest.approx(
+        np.std(metrics.percentile_scores(index, "vibration", every["vibration"])), abs=0.01)
 
 
 def test_a_new_metric_reaches_every_consumer(with_plain_usr):

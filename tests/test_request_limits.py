@@ -15,23 +15,12 @@ from library.search import substitutes
 from webui import create_app
 from webui.heavy import HeavyPool, ServerBusy, TooSlow
 
-from web_helpers import PASSWORD
+from web_helpers import PASSWORD, computed_app
 
 
 @pytest.fixture
 def limited_app(computed_template, tmp_path):
-    import shutil
-
-    target = tmp_path / "catalogue.sqlite"
-    shutil.copyfile(computed_template, target)
-    catalogue = Catalogue(f"sqlite:///{target}")
-    app = create_app({"OLIBRA_DB": catalogue.url, "TESTING": True, "OLIBRA_HEAVY_WORKERS": 1,
-                      "OLIBRA_HEAVY_QUEUE": 0, "OLIBRA_INDEX_CACHE_DIR": str(tmp_path / "index-cache")})
-    yield app
-    catalogue.dispose()
-    state = app.extensions["olibra"]
-    if state._catalogue is not None:
-        state._catalogue.dispose()
+    yield from computed_app(computed_template, tmp_path, OLIBRA_HEAVY_WORKERS=1, OLIBRA_HEAVY_QUEUE=0)
 
 
 def reader(app):

@@ -162,3 +162,23 @@ def edit_form(client, material) -> dict:
     values["synonyms"] = values["synonyms"].lstrip("\n")
     values.pop("csrf-token", None)
     return values
+
+
+def computed_app(template: Path, folder: Path, **config):
+    """Yields the web app (testing mode) on a copy of the computed template in `folder`, with `config`
+    added, and closes its catalogues afterwards (use with `yield from` in a fixture)."""
+    import shutil
+
+    from library.catalogue.database import Catalogue
+    from webui import create_app
+
+    target = folder / "catalogue.sqlite"
+    shutil.copyfile(template, target)
+    catalogue = Catalogue(f"sqlite:///{target}")
+    app = create_app({"OLIBRA_DB": catalogue.url, "TESTING": True,
+                      "OLIBRA_INDEX_CACHE_DIR": str(folder / "index-cache"), **config})
+    yield app
+    catalogue.dispose()
+    state = app.extensions["olibra"]
+    if state._catalogue is not None:
+        state._catalogue.dispose()

@@ -146,6 +146,8 @@ class SubstituteRequest:
 def substitute_request(args) -> SubstituteRequest:
     metric = (args.get("metric") or "blend").strip()
     if metric not in metrics.names(indexed=True):
+        search_index()  # loading the index registers the catalogue's calibrated metrics
+    if metric not in metrics.names(indexed=True):
         raise ArgumentError(f"metric {metric[:30]!r} is not one of {', '.join(metrics.names(indexed=True))}")
     must_have = must_not_have = []
     if args.get("with") or args.get("without"):

@@ -313,3 +313,29 @@ class BackgroundJob(Base):
     created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
     started_at: Mapped[dt.datetime | None] = mapped_column(DateTime(timezone=True))
     finished_at: Mapped[dt.datetime | None] = mapped_column(DateTime(timezone=True))
+
+
+class PairClassDefinition(Base):
+    """A user's pair class: materials related by a functional-group swap written as reaction SMARTS."""
+
+    __tablename__ = "pair_class"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(60), unique=True)
+    reaction_smarts: Mapped[str] = mapped_column(Text)
+    description: Mapped[str | None] = mapped_column(Text)
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
+
+
+class CalibratedMetric(Base):
+    """Blend weights learned from an observation source, stamped with the source and its content hash."""
+
+    __tablename__ = "calibrated_metric"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(60), unique=True)
+    weights_json: Mapped[str] = mapped_column(Text)  # {metric: non-negative weight on its percentile}
+    observed_source: Mapped[str] = mapped_column(String(100))  # 'descriptors' or an observation set name
+    observed_revision: Mapped[str] = mapped_column(String(64))  # hash of the observations it was fitted on
+    report_json: Mapped[str] = mapped_column(Text)  # cross-validated figures
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)

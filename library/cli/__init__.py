@@ -56,6 +56,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "flags": ("search_commands", "list pair flags"),
     "observations": ("search_commands", "import measured data (panel profiles, receptor responses)"),
     "scorecard": ("search_commands", "how well each metric predicts observed similarity"),
+    "pairs": ("pair_commands", "pair classes (enantiomers, isotopologues, E/Z, functional-group swaps) and their tests"),
+    "calibrate": ("calibrate_commands", "learn blend weights from observed similarity with grouped cross-validation"),
     "user": ("web_commands", "web interface accounts: add, list, password, role, disable, enable, remove"),
     "serve": ("web_commands", "serve the web interface (waitress; 127.0.0.1:8150 by default)"),
     "demo": ("demo_commands", "build a demo catalogue from the seed files and compute its records"),

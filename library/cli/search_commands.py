@@ -310,8 +310,9 @@ def _add_common(p, *, weight=True, fmt=True) -> None:
 def register(commands) -> None:
     p = commands.add_parser("search")
     p.add_argument("query", help="material (name, id, CAS RN, InChIKey) or a structure (SMILES, InChI)")
-    p.add_argument("--metric", choices=metrics.names(indexed=True), default="blend",
-                   help="; ".join(f"{m.name}: {m.description}" for m in metrics.metrics(indexed=True)))
+    p.add_argument("--metric", default="blend", metavar="METRIC",
+                   help="; ".join(f"{m.name}: {m.description}" for m in metrics.metrics(indexed=True))
+                   + "; or the name of a metric stored by `olibra calibrate`")
     p.add_argument("-k", type=int, default=10, help="number of candidates (default 10)")
     p.add_argument("--mw", type=float, nargs=2, metavar=("LOW", "HIGH"), help="molecular weight range, g/mol")
     p.add_argument("--logp", type=float, nargs=2, metavar=("LOW", "HIGH"), help="computed logP range")

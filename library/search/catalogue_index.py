@@ -113,6 +113,9 @@ def load_index(catalogue, *, vibration_engine: str = DEFAULT_ENGINE, cache_dir: 
 
     from library.catalogue.models import CatalogueState
 
+    from library.search.calibration import register_stored
+
+    register_stored(catalogue)  # calibrated blends stored in this catalogue become metrics
     stamps = record_stamps(vibration_engine)
     with _snapshot(catalogue) as session, session.begin():
         number = session.scalar(select(CatalogueState.revision).where(CatalogueState.id == 1))

@@ -72,4 +72,7 @@ def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, perm
                                          permutations=permutations, resamples=resamples, k=k, seed=seed)
     except ValueError as exc:
         raise SearchError(str(exc)) from None
+    from library.search.calibration import scorecard_notes
+
+    notes += scorecard_notes(catalogue, observation, matrices)
     return report, label, notes

@@ -537,7 +537,7 @@ class SimilarityIndex:
         values = metric.first_stage(self, query, weight=weight, full=full) if approximate else None
         cache[("first stage", metric.name)] = values is not None
         if values is None and metric.components:
-            values = metric.combine({name: full(name) for name in metric.components}, weight=weight)
+            values = metric.combine({name: full(name) for name in metric.components}, weight=weight, index=self)
         if values is None:
             values = metric.similarity(query, self._catalogue, weight=weight)[0]
         cache[key] = values = np.asarray(values, np.float32)

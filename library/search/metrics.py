@@ -12,6 +12,8 @@ overlay    Gaussian shape Tanimoto of the best rotation-only superposition (J. C
 vibration  cosine of EVA fingerprints (J. Comput.-Aided Mol. Des. 11, 143 (1997)); the
            fingerprints are non-negative, so the cosine lies in 0-1
 blend      ``w * shape + (1 - w) * vibration``, ``w`` the shape weight in 0-1
+blend-rank ``w * P(shape) + (1 - w) * P(vibration)``, P the percentile (0-1) of a similarity among
+           the catalogue's pairs, so the two parts are on one scale and 0.5 is an even mix
 structure  Tanimoto coefficient of Morgan radius-2, 2048-bit fingerprints (the 2D baseline)
 =========  ==================================================================================
 
@@ -261,8 +263,10 @@ class Metric:
                  for name in self.components}
         return self.combine(parts, weight=weight)
 
-    def combine(self, parts: Mapping[str, np.ndarray], *, weight: float = DEFAULT_WEIGHT) -> np.ndarray:
-        """A composite metric's similarity from its components' similarities."""
+    def combine(self, parts: Mapping[str, np.ndarray], *, weight: float = DEFAULT_WEIGHT,
+                index=None) -> np.ndarray:
+        """A composite metric's similarity from its components' similarities (`index`: the fitted
+        index the scores come from, for composites that read catalogue-wide distributions)."""
         raise NotImplementedError(f"metric {self.name!r} is not composite")
 
     def first_stage(self, index, query: Block, *, weight: float = DEFAULT_WEIGHT,
@@ -378,7 +382,7 @@ class VibrationMetric(Metric):
 
 @dataclass(frozen=True)
 class BlendMetric(Metric):
-    def combine(self, parts, *, weight=DEFAULT_WEIGHT):
+    def combine(self, parts, *, weight=DEFAULT_WEIGHT, index=None):
         shape, vibration = parts["shape"], parts["vibration"]
         return (weight * shape + (1 - weight) * vibration).astype(np.float32)
 
@@ -386,6 +390,96 @@ class BlendMetric(Metric):
         if getattr(index, "compressed_", None) is None or full is None:
             return None
         return self.combine({name: full(name) for name in self.components}, weight=weight)
+
+
+REFERENCE_PAIRS = 20_000  # random catalogue pairs whose scores define each component's percentiles
+
+
+def reference_scores(index, name: str, *, pairs: int = REFERENCE_PAIRS, seed: int = 0) -> np.ndarray:
+    """Sorted similarities of metric `name` over a seeded sample of catalogue pairs (all pairs when
+    fewer), kept on the fitted index: the catalogue-wide distribution percentiles are read from."""
+    cache = index.__dict__.setdefault("_reference_scores", {})
+    if name not in cache:
+        n = index.size
+        if n < 2:
+            raise ValueError("percentiles need an index of at least 2 materials")
+        if n * (n - 1) // 2 <= pairs:
+            a, b = np.triu_indices(n, 1)
+        else:
+            rng = np.random.default_rng(seed)
+            a = rng.integers(0, n, size=pairs)
+            b = rng.integers(0, n - 1, size=pairs)
+            b = b + (b >= a)
+        metric = get(name)
+        features = features_of(metric)
+        values = metric.similarity(index.block(a, features), index.block(b, features), aligned=True)
+        cache[name] = np.sort(np.asarray(values, np.float64))
+    return cache[name]
+
+
+def percentile_scores(index, name: str, values: np.ndarray) -> np.ndarray:
+    """Mid-rank percentile (0-1) of similarities `values` of metric `name` among the catalogue's pairs."""
+    reference = reference_scores(index, name)
+    values = np.asarray(values, np.float64)
+    below = np.searchsorted(reference, values, side="left")
+    upto = np.searchsorted(reference, values, side="right")
+    return ((below + upto) / (2.0 * reference.size)).astype(np.float32)
+
+
+@dataclass(frozen=True)
+class RankBlendMetric(Metric):
+    """Weighted mean of component percentiles over the catalogue's pairs: 0.5 is an even mix.
+
+    ``fixed_weights`` ((metric, weight), ...) for a calibrated blend; otherwise the first component
+    gets ``w`` and the second ``1 - w``. Percentiles come from the fitted index the catalogue block
+    belongs to (see :func:`reference_scores`).
+    """
+
+    fixed_weights: tuple[tuple[str, float], ...] = ()
+    stale: bool = False
+    needs_index: bool = True  # scored only through a fitted index (percentiles of its catalogue pairs)
+
+    def weights(self, weight: float) -> dict[str, float]:
+        if self.fixed_weights:
+            return dict(self.fixed_weights)
+        return {self.components[0]: weight, self.components[1]: 1.0 - weight}
+
+    def similarity(self, query, catalogue, *, aligned=False, weight=DEFAULT_WEIGHT):
+        index = catalogue.index if catalogue.index is not None else query.index
+        if index is None:
+            raise ValueError(f"metric {self.name!r} reads percentiles from a fitted index; score it through one")
+        parts = {name: get(name).similarity(query, catalogue, aligned=aligned, weight=weight)
+                 for name in self.components}
+        return self.combine(parts, weight=weight, index=index)
+
+    def combine(self, parts, *, weight=DEFAULT_WEIGHT, index=None):
+        if index is None:
+            raise ValueError(f"metric {self.name!r} reads percentiles from a fitted index; score it through one")
+        total = None
+        for name, share in self.weights(weight).items():
+            term = share * percentile_scores(index, name, parts[name])
+            total = term if total is None else total + term
+        return np.asarray(total, np.float32)
+
+    def first_stage(self, index, query, *, weight=DEFAULT_WEIGHT, full=None):
+        if getattr(index, "compressed_", None) is None or full is None:
+            return None
+        return self.combine({name: full(name) for name in self.components}, weight=weight, index=index)
+
+
+def register_calibrated(name: str, weights: Mapping[str, float], description: str, *, stale: bool = False) -> Metric:
+    """Register (or replace) a calibrated blend: fixed non-negative weights on component percentiles."""
+    previous = _REGISTRY.get(name)
+    if previous is not None and not (isinstance(previous, RankBlendMetric) and previous.fixed_weights):
+        raise ValueError(f"{name!r} is a built-in metric; give the calibrated metric another name")
+    components = tuple(m for m, w in weights.items() if w > 0)
+    if not components:
+        raise ValueError(f"calibrated metric {name!r} has no positive weight")
+    records = tuple(dict.fromkeys(r for m in components for r in get(m).records))
+    metric = RankBlendMetric(name, description, components=components, records=records,
+                             fixed_weights=tuple((m, float(weights[m])) for m in components), stale=stale)
+    _REGISTRY.pop(name, None)
+    return register(metric)
 
 
 @dataclass(frozen=True)
@@ -512,6 +606,10 @@ register(VibrationMetric(
 register(BlendMetric(
     "blend", "w * shape + (1 - w) * vibration, w the shape weight (0-1)",
     components=("shape", "vibration"), records=("shape", "vibration"), uses_weight=True))
+register(RankBlendMetric(
+    "blend-rank", "w * percentile(shape) + (1 - w) * percentile(vibration), percentiles over the catalogue's "
+    "pairs, so w = 0.5 is an even mix", components=("shape", "vibration"), records=("shape", "vibration"),
+    uses_weight=True))
 register(StructureMetric(
     "structure", "Tanimoto of Morgan radius-2, 2048-bit fingerprints: the 2D baseline",
     features=("structure",)))

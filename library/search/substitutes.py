@@ -142,8 +142,11 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
     `query` is a key or structure text (resolved here) or an already resolved QueryMaterial.
     Demo entries (invented odor notes) are left out unless `include_demo`.
     """
+    from library.search.calibration import register_stored
     from library.search.pairs import explain_pair
 
+    if metric not in metric_registry.names():
+        register_stored(catalogue)  # a calibrated metric stored in this catalogue
     check_search(metric, weight, k)
     if cat_index is None:
         cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
@@ -167,6 +170,9 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
     if demo_ids and not include_demo:
         notes.append(f"{len(demo_ids)} demo entr{'y' if len(demo_ids) == 1 else 'ies'} with invented odor notes "
                      "left out (include them with the demo switch)")
+    if getattr(metric_registry.get(metric), "stale", False):
+        notes.append(f"metric {metric} is stale: the observations it was calibrated on changed since; "
+                     "run `olibra calibrate` again")
     if cat_index.unindexed:
         notes.append(f"{len(cat_index.unindexed)} material(s) without current records are not searched; "
                      "compute their records to include them")

@@ -94,9 +94,12 @@ def resample_material(shape_arrays: dict, shape_summary: dict, vibration_arrays:
 def pair_spreads(a: ResampledFeatures, b: ResampledFeatures, *,
                  weight: float = metric_registry.DEFAULT_WEIGHT) -> dict[str, float]:
     """{metric: standard deviation of its pair score over the resamples} for every indexed metric
-    whose features both materials have resampled."""
+    whose features both materials have resampled (metrics read from a fitted index's catalogue-wide
+    distribution, such as blend-rank, are left out: resampled features are outside any index)."""
     out = {}
     for metric in metric_registry.metrics(indexed=True):
+        if getattr(metric, "needs_index", False):
+            continue
         needed = metric_registry.features_of(metric)
         if not all(f in a.features and f in b.features for f in needed):
             continue

@@ -141,3 +141,15 @@ def test_scorecard_runs_and_draws(curator_page, expect, screenshot):
     expect(page.locator("svg.npr")).to_be_visible()
     screenshot(page, "material-spectrum")
     assert page.console_errors == []
+
+
+def test_pair_class_page_tests_the_enantiomers(curator_page, expect, screenshot):
+    page = curator_page
+    page.click("nav >> text=Pair classes")
+    row = page.locator("#pair-classes tbody tr", has_text="enantiomers")
+    expect(row.locator("td.num")).to_have_text("1")  # (R)/(S)-carvone: the seed file's one pair here
+    row.locator("a:has-text('test')").click()
+    expect(page.locator("#class-test")).to_contain_text("(R)-(-)-Carvone / (S)-(+)-Carvone")
+    expect(page.locator("#class-test tbody tr")).to_have_count(len(metrics.names(indexed=True)))
+    screenshot(page, "pair-class-test")
+    assert page.console_errors == []
