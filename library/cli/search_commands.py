@@ -51,10 +51,22 @@ def store_query(catalogue, args) -> str:
     return str(outcome.material.id)
 
 
+def check_terms(catalogue, args) -> None:
+    """Refuse odor terms outside the vocabulary, with the same message as the web."""
+    if not (args.with_odor or args.without_odor):
+        return
+    with catalogue.reading() as session:
+        known = set(curation.vocabulary(session))
+    where = "`olibra vocabulary list`"
+    curation.check_odor_terms(args.with_odor or (), known, label="--with-odor", where=where)
+    curation.check_odor_terms(args.without_odor or (), known, label="--without-odor", where=where)
+
+
 def cmd_search(args) -> int:
     catalogue = open_catalogue(args)
     if args.store_as:
         args.query = store_query(catalogue, args)
+    check_terms(catalogue, args)
     filters = build_filter(
         mw_range=_range(args.mw), logp_range=_range(args.logp), must_have=args.with_odor or (),
         must_not_have=args.without_odor or (), include_retired=args.include_retired,
