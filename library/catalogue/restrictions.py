@@ -133,8 +133,9 @@ def add_restriction(session: Session, material: Material, entry: RestrictionEntr
     return row
 
 
-def remove_restriction(session: Session, restriction_id: int, *, actor: str | None = None) -> Restriction:
-    """Delete one entry by its id (audited)."""
+def remove_restriction(session: Session, restriction_id: int, *,
+                       actor: str | None = None) -> tuple[Material, str]:
+    """Delete one entry by its id (audited); returns its material and the removed entry's tag."""
     row = session.get(Restriction, restriction_id)
     if row is None:
         raise CurationError(f"no restriction entry #{restriction_id}; `olibra restriction list MATERIAL` "
@@ -144,7 +145,7 @@ def remove_restriction(session: Session, restriction_id: int, *, actor: str | No
     _sync_flag(material)
     audit(session, actor=actor or current_actor(), action="delete", material=material,
           field_name="restriction", old=tag(row), new=None)
-    return row
+    return material, tag(row)
 
 
 def set_flag(session: Session, material: Material, restricted: bool, *, actor: str | None = None) -> None:

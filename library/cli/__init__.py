@@ -140,7 +140,7 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     if args.actor and args.actor.strip():
-        os.environ["OLIBRA_ACTOR"] = args.actor.strip()  # read by curation.current_actor
+        os.environ["OLIBRA_ACTOR"] = args.actor.strip()  # read by curation.current_actor (this process only)
     try:
         return int(args.handler(args) or 0)
     except OlibraError as exc:

@@ -15,9 +15,9 @@ def cmd_restriction(args) -> int:
         if not args.target.lstrip("#").isdigit():
             raise OlibraError("give the entry's id to remove (`olibra restriction list MATERIAL` shows it)")
         with catalogue.transaction() as session:
-            row = restrictions.remove_restriction(session, int(args.target.lstrip("#")))
-            print(f"removed restriction #{row.id} ({restrictions.tag(row)}) from "
-                  f"#{row.material.id} {row.material.preferred_name}")
+            number = int(args.target.lstrip("#"))
+            material, removed = restrictions.remove_restriction(session, number)
+            print(f"removed restriction #{number} ({removed}) from #{material.id} {material.preferred_name}")
         return 0
     if args.action == "add":
         entry = restrictions.check_entry(kind=args.kind, authority=args.authority, reference=args.reference,
