@@ -215,3 +215,14 @@ def excluded(material: Material, *, prohibited: bool = False, restricted: bool =
     """Whether --exclude-prohibited / --exclude-restricted leave this material out."""
     kinds = {r.kind for r in material.restrictions}
     return (prohibited and "prohibited" in kinds) or (restricted and bool(kinds & set(BLOCKING_KINDS)))
+
+
+def tags_by_id(session: Session, material_ids) -> dict[int, str]:
+    """{material id: tags} for the given ids (materials without entries are left out)."""
+    ids = sorted({int(i) for i in material_ids})
+    found: dict[int, list[str]] = {}
+    if ids:
+        for row in session.scalars(select(Restriction).where(Restriction.material_id.in_(ids))
+                                   .order_by(Restriction.id)):
+            found.setdefault(row.material_id, []).append(tag(row))
+    return {material_id: "; ".join(texts) for material_id, texts in found.items()}
