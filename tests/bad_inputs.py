@@ -80,6 +80,22 @@ BAD_CSV_ROWS = [
     (b"name,smiles\n" + b"E" * 300 + b",CCO\n", "characters long"),
     (b"name,smiles\nLinalool,CCO\n", "already used"),                          # name of another material
     (b"name,smiles,cas,cas_source\nEthanol,CCO,78-70-6,from memory\n", "already used"),
+    (b"name,smiles,structure_source\nEthanol,CCO,literature: my notebook\n", "does not look like a published"),
+    # restriction entries (a JSON array in the restrictions column)
+    (b"name,smiles,restrictions\nEthanol,CCO,prohibited\n", "not a JSON array"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"{""kind"": ""prohibited""}"\n', "must be a list of entries"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"[{""kind"": ""banned"", ""authority"": ""x""}]"\n', "is not one of"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"[{""kind"": ""prohibited""}]"\n', "needs an authority"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"[{""kind"": ""restricted"", ""authority"": ""x"", '
+     b'""max_percent"": 150}]"\n', "outside 0-100"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"[{""kind"": ""restricted"", ""authority"": ""x"", '
+     b'""max_percent"": ""lots""}]"\n', "is not a number"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"[{""kind"": ""allergen"", ""authority"": ""x"", '
+     b'""date"": ""3 May""}]"\n', "YYYY-MM-DD"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"[{""kind"": ""allergen"", ""authority"": ""x"", '
+     b'""level"": 1}]"\n', "unknown key"),
+    (b'name,smiles,restrictions\nEthanol,CCO,"[{""kind"": ""allergen"", ""authority"": ""x"", '
+     b'""source"": ""literature: my notebook""}]"\n', "does not look like a published"),
 ]
 
 BAD_SDF = [

@@ -97,7 +97,8 @@ def test_import_with_bad_rows_changes_nothing_by_default(catalogue, tmp_path):
             assert not report.committed
             outer.rollback()
     assert [(r.row, r.status) for r in report.rows] == [
-        (1, "added"), (2, "rejected"), (3, "added"), (4, "rejected"), (5, "present")]
+        (1, "would be added"), (2, "rejected"), (3, "would be added"), (4, "rejected"), (5, "present")]
+    assert all(r.material_id is None and "#" not in r.message for r in report.rows if r.status == "would be added")
     assert "unclosed ring" in report.rows[1].message
     assert "check digit" in report.rows[3].message
     assert "row 1" in report.rows[4].message
@@ -163,7 +164,8 @@ def test_status_changes_are_audited_and_bump_the_revision(catalogue):
         entries = session.scalars(select(AuditEntry).where(AuditEntry.entity == "material",
                                                            AuditEntry.field.is_not(None))).all()
         assert [(e.actor, e.field, e.old_value, e.new_value) for e in entries] == [
-            ("curator-a", "status", "active", "retired"), ("curator-a", "restricted", "False", "True")]
+            ("curator-a", "status", "active", "retired"),
+            ("curator-a", "restriction", None, "restricted (not recorded)")]
 
 
 def test_failed_transaction_leaves_no_trace(catalogue):

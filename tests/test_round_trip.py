@@ -18,7 +18,8 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 from sqlalchemy import delete
 
-from library.catalogue import curation, transfer
+from library.catalogue import curation, restrictions, transfer
+from library.catalogue.models import RESTRICTION_KINDS
 from library.catalogue.database import initialize
 from library.catalogue.models import AuditEntry, Material
 from library.cli import main
@@ -157,6 +158,9 @@ def catalogues(draw):
             "odors": odors,
             "status": draw(st.sampled_from(["active", "retired"])),
             "restricted": draw(st.booleans()),
+            "restrictions": [(draw(st.sampled_from(RESTRICTION_KINDS)), f"{draw(_NAME_PART).strip() or 'a'} authority",
+                              draw(st.one_of(st.none(), st.floats(0, 100))), draw(_REFERENCE))
+                             for _ in range(draw(st.integers(0, 2)))],
             "name_source": draw(st.one_of(st.just("from memory"), _NAME_PART.map(lambda t: f"measured: {t}"))),
         })
     return materials
@@ -168,8 +172,8 @@ def _store(catalogue, materials) -> None:
             odor_sources = {}
             for term, _, kind, reference in m["odors"]:
                 text = f"{kind}: {reference}" if reference and reference.strip() else kind
-                if kind == "literature" and not (reference and reference.strip()):
-                    text = "literature: J. Agric. Food Chem. 50, 1 (2002)"
+                if kind == "literature":  # a literature source must read as a reference; hostile text after it
+                    text = f"literature: J. Agric. Food Chem. 50, 1 (2002) {reference or ''}".rstrip()
                 odor_sources[term] = text
             draft = curation.draft_material(
                 m["smiles"], name=m["name"], synonyms=m["synonyms"], cas=m["cas"], family=m["family"],
@@ -178,6 +182,11 @@ def _store(catalogue, materials) -> None:
                 sources={"structure": "from memory", "preferred_name": m["name_source"],
                          "cas_rn": "literature: CRC Handbook 97, 3-1 (2016)" if m["cas"] else None},
                 odor_sources=odor_sources)
+            draft.restrictions = [
+                restrictions.check_entry(kind=kind, authority=authority, reference=reference,
+                                         max_percent=level if kind in ("restricted", "allergen") else None,
+                                         category=reference, date="2024-02-29")
+                for kind, authority, level, reference in m.get("restrictions", [])]
             draft.status, draft.restricted = m["status"], m["restricted"]
             curation.add_material(session, draft, actor="test")
 

@@ -88,12 +88,11 @@ def terms_argument(args, name: str, label: str, vocabulary: set[str]) -> list[st
     """Odor descriptors separated by commas (or given repeatedly); each must be in the vocabulary."""
     values = args.getlist(name) if hasattr(args, "getlist") else [args.get(name) or ""]
     terms = [t.strip().lower() for v in values for t in str(v).split(",") if t.strip()]
-    unknown = [t for t in terms if t not in vocabulary]
-    if unknown:
-        raise ArgumentError(f"{label}: {', '.join(repr(t[:40]) for t in unknown)} "
-                            f"{'is' if len(unknown) == 1 else 'are'} not in the odor vocabulary; "
-                            "use terms from the Vocabulary page, separated by commas")
-    return terms
+    try:
+        return curation.check_odor_terms(terms, vocabulary, label=label,
+                                         where="the Vocabulary page, separated by commas")
+    except curation.CurationError as exc:
+        raise ArgumentError(str(exc)) from None
 
 
 def vocabulary() -> set[str]:

@@ -7,7 +7,10 @@ per user action); none commits on its own.
 from __future__ import annotations
 
 import csv
+import difflib
 import getpass
+import os
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -38,7 +41,15 @@ class CurationError(OlibraError, ValueError):
     """A curation request that cannot be carried out as given."""
 
 
+ACTOR_VARIABLE = "OLIBRA_ACTOR"
+
+
 def current_actor() -> str:
+    """Who a write is attributed to when no signed-in user makes it: $OLIBRA_ACTOR (the CLI's --actor
+    sets it), else the operating-system user."""
+    named = (os.environ.get(ACTOR_VARIABLE) or "").strip()
+    if named:
+        return named[:100]
     try:
         return getpass.getuser()
     except Exception:  # no login name in some containers
@@ -66,13 +77,34 @@ class Source:
             raise CurationError(
                 f"provenance {text!r} does not start with one of: {', '.join(PROVENANCE_KINDS)}")
         reference = reference.strip() or None
-        if kind == "literature" and not reference:
+        if kind == "literature" and not looks_like_reference(reference):
             raise CurationError(
+                f"literature provenance {reference[:60]!r} does not look like a published reference; write "
+                "journal, volume, first page and year, e.g. 'literature: J. Agric. Food Chem. 50, 1 (2002)', "
+                "or a DOI, e.g. 'literature: doi:10.1093/chemse/21.6.773'; for your own notes use "
+                "'from memory' or 'measured: ...'" if reference else
                 "literature provenance needs a reference, e.g. 'literature: J. Agric. Food Chem. 50, 1 (2002)'")
         return cls(kind, reference)
 
     def __str__(self) -> str:
         return f"{self.kind}: {self.reference}" if self.reference else self.kind
+
+
+DOI_PATTERN = re.compile(r"\b10\.\d{4,9}/\S+")
+YEAR_PATTERN = re.compile(r"\b(1[6-9]\d\d|20\d\d)\b")
+
+
+def looks_like_reference(text: str | None) -> bool:
+    """A DOI, or a journal name with a volume, a page and a year (e.g. 'Chem. Senses 21, 773 (1996)')."""
+    text = (text or "").strip()
+    if DOI_PATTERN.search(text):
+        return True
+    year = YEAR_PATTERN.search(text)
+    if year is None:
+        return False
+    others = re.findall(r"\d+", text[:year.start()] + " " + text[year.end():])
+    journal = re.match(r"\s*[^\W\d_][^\d]*", text)
+    return len(others) >= 2 and journal is not None and sum(c.isalpha() for c in journal.group()) >= 2
 
 
 @dataclass
@@ -106,6 +138,20 @@ def parse_odor_list(text: str | None) -> list[OdorAssignment]:
     return assignments
 
 
+def check_odor_terms(terms, vocabulary_terms, *, label: str, where: str) -> list[str]:
+    """The terms, lower-cased, if each is in the odor vocabulary; otherwise a CurationError naming the
+    unknown ones, close vocabulary terms and `where` the vocabulary is listed (the CLI and the web share it)."""
+    terms = [str(t).strip().lower() for t in terms if str(t).strip()]
+    unknown = [t for t in terms if t not in vocabulary_terms]
+    if unknown:
+        close = sorted({match for t in unknown for match in
+                        difflib.get_close_matches(t[:60], sorted(vocabulary_terms), n=3, cutoff=0.6)})
+        raise CurationError(f"{label}: {', '.join(repr(t[:40]) for t in unknown)} "
+                            f"{'is' if len(unknown) == 1 else 'are'} not in the odor vocabulary; "
+                            + (f"close terms: {', '.join(close)}; " if close else "") + f"use terms from {where}")
+    return terms
+
+
 def format_strength(strength: float) -> str:
     """A strength as short as it can be written and still be read back as the same number."""
     short = f"{strength:g}"
@@ -135,7 +181,8 @@ class MaterialDraft:
     odor_source: Source | None = None
     odor_sources: dict[str, Source] = field(default_factory=dict)  # per term, overriding odor_source
     status: str = "active"
-    restricted: bool = False
+    restricted: bool = False  # the former yes/no column; an entry 'restricted, not recorded' when no entries
+    restrictions: list = field(default_factory=list)  # restrictions.RestrictionEntry
 
 
 def _clean_name(name: str | None, what: str) -> str:
@@ -269,6 +316,12 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
     """Store a checked draft, or report the existing material with the same InChIKey."""
     actor = actor or current_actor()
     existing = find_by_inchikey(session, draft.structure.inchikey)
+    if existing is not None and draft.cas_rn and existing.cas_rn != draft.cas_rn:
+        holder = session.scalar(select(Material).where(Material.cas_rn == draft.cas_rn))
+        if holder is not None:
+            raise CurationError(
+                f"conflict: the structure is #{existing.id} {existing.preferred_name} but CAS RN {draft.cas_rn} "
+                f"belongs to #{holder.id} {holder.preferred_name}; check the number or the structure")
     if existing is not None:
         return AddOutcome(existing, False,
                           f"already present as #{existing.id} {existing.preferred_name} "
@@ -304,7 +357,7 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
         heavy_atom_count=s.heavy_atom_count, stereo_status=s.stereo_status,
         unassigned_stereo_count=s.unassigned_stereo_count,
         olfactive_family=draft.olfactive_family, notes=draft.notes, status=draft.status,
-        restricted=bool(draft.restricted),
+        restricted=False,
     )
     material.synonyms = [Synonym(name=n) for n in draft.synonyms]
     material.provenance = [Provenance(field=f, kind=src.kind, reference=src.reference)
@@ -318,6 +371,12 @@ def add_material(session: Session, draft: MaterialDraft, *, actor: str | None = 
     session.flush()
     session.add(AuditEntry(actor=actor, action="create", entity="material", entity_id=material.id,
                            new_value=f"{material.preferred_name} {material.smiles}"))
+    from library.catalogue import restrictions  # restrictions builds on this module
+
+    for entry in draft.restrictions:
+        restrictions.add_restriction(session, material, entry, actor=actor)
+    if draft.restricted and not material.restricted:
+        restrictions.set_flag(session, material, True, actor=actor)
     return AddOutcome(material, True, f"added #{material.id} {material.preferred_name}")
 
 
@@ -367,10 +426,11 @@ def set_status(session: Session, material: Material, status: str, *, actor: str 
 
 
 def set_restricted(session: Session, material: Material, restricted: bool, *, actor: str | None = None) -> None:
-    if material.restricted != restricted:
-        audit(session, actor=actor or current_actor(), action="update", material=material,
-              field_name="restricted", old=material.restricted, new=restricted)
-        material.restricted = restricted
+    """Restricted: record an entry 'restricted, details not recorded'; unrestricted: remove the prohibited
+    and restricted entries (both audited)."""
+    from library.catalogue import restrictions  # restrictions builds on this module
+
+    restrictions.set_flag(session, material, restricted, actor=actor)
 
 
 def add_descriptor(session: Session, term: str, *, family: str | None = None,

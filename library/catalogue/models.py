@@ -11,6 +11,7 @@ import datetime as dt
 
 from sqlalchemy import (
     Boolean,
+    Date,
     CheckConstraint,
     DateTime,
     Float,
@@ -37,6 +38,9 @@ PROVENANCE_KINDS = ("measured", "literature", "from memory", "computed", "demo")
 STEREO_STATUSES = ("defined", "partly undefined", "none")
 MATERIAL_STATUSES = ("active", "retired")
 COMPUTED_KINDS = ("shape", "vibration")
+# prohibited; restricted (a maximum level in a product category); specification required (a purity or
+# composition the material must meet); allergen (to be declared on the label above a threshold)
+RESTRICTION_KINDS = ("prohibited", "restricted", "specification", "allergen")
 
 
 def utc_now() -> dt.datetime:
@@ -90,6 +94,8 @@ class Material(Base):
         back_populates="material", cascade="all, delete-orphan", order_by="Provenance.field")
     computed: Mapped[list[ComputedRecord]] = relationship(
         back_populates="material", cascade="all, delete-orphan")
+    restrictions: Mapped[list[Restriction]] = relationship(
+        back_populates="material", cascade="all, delete-orphan", order_by="Restriction.id")
 
     def __repr__(self) -> str:
         return f"<Material #{self.id} {self.preferred_name!r} {self.inchikey}>"
@@ -122,6 +128,33 @@ class Provenance(Base):
     reference: Mapped[str | None] = mapped_column(Text)
 
     material: Mapped[Material] = relationship(back_populates="provenance")
+
+
+class Restriction(Base):
+    """A regulatory or standard's entry a curator recorded for a material (not a regulatory database).
+
+    `restricted` on the material is kept equal to "has a prohibited or restricted entry", so the
+    search index can leave such materials out without reading this table."""
+
+    __tablename__ = "restriction"
+    __table_args__ = (
+        CheckConstraint(_one_of("kind", RESTRICTION_KINDS), name="kind"),
+        CheckConstraint(_one_of("source_kind", PROVENANCE_KINDS), name="source_kind"),
+        CheckConstraint("max_percent IS NULL OR (max_percent >= 0 AND max_percent <= 100)", name="max_percent"),
+    )
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    material_id: Mapped[int] = mapped_column(ForeignKey("material.id", ondelete="CASCADE"), index=True)
+    kind: Mapped[str] = mapped_column(String(20))
+    max_percent: Mapped[float | None] = mapped_column(Float)  # maximum level, percent by mass
+    product_category: Mapped[str | None] = mapped_column(String(200))
+    authority: Mapped[str] = mapped_column(String(200))
+    reference: Mapped[str | None] = mapped_column(Text)
+    decided_on: Mapped[dt.date | None] = mapped_column(Date)
+    source_kind: Mapped[str] = mapped_column(String(20))
+    source_reference: Mapped[str | None] = mapped_column(Text)
+
+    material: Mapped[Material] = relationship(back_populates="restrictions")
 
 
 class OdorDescriptor(Base):

@@ -10,7 +10,9 @@ CSV columns (header row, UTF-8, any order, case-insensitive):
     'literature: <reference>', 'measured: <how>', 'computed: <how>'), notes,
     inchikey (checked), status (active or retired), restricted (yes or no),
     odor_sources (a JSON object: term -> provenance, for the terms whose source
-    differs from odor_source)
+    differs from odor_source), restrictions (a JSON array of the curator's
+    restriction entries: kind, authority, max_percent, category, reference,
+    date, source; see library.catalogue.restrictions)
 
 Flat values are plain text; a structured curated field is one column holding
 JSON (odor_sources today; more such columns can be added beside it). Cells a
@@ -52,6 +54,7 @@ from library.catalogue.curation import (
     format_strength,
     vocabulary,
 )
+from library.catalogue import restrictions
 from library.catalogue.database import CatalogueBusy, busy_message, is_busy
 from library.catalogue.models import Material, MaterialOdor
 from library.errors import OlibraError
@@ -59,10 +62,12 @@ from library.structures import StructureError
 
 CSV_COLUMNS = ("name", "synonyms", "cas", "smiles", "inchi", "formula", "family", "odor",
                "structure_source", "cas_source", "odor_source", "name_source", "notes", "inchikey",
-               "status", "restricted", "odor_sources", "synonyms_source", "family_source", "notes_source")
+               "status", "restricted", "odor_sources", "synonyms_source", "family_source", "notes_source",
+               "restrictions")
 EXPORT_COLUMNS = ("name", "synonyms", "cas", "smiles", "formula", "family", "odor",
                   "structure_source", "cas_source", "odor_source", "name_source", "notes", "inchikey",
-                  "status", "restricted", "odor_sources", "synonyms_source", "family_source", "notes_source")
+                  "status", "restricted", "odor_sources", "synonyms_source", "family_source", "notes_source",
+                  "restrictions")
 # Import column -> provenance field it sets.
 SOURCE_COLUMNS = {"structure_source": "structure", "cas_source": "cas_rn", "name_source": "preferred_name",
                   "synonyms_source": "synonyms", "family_source": "olfactive_family", "notes_source": "notes"}
@@ -81,7 +86,7 @@ class ImportFileError(OlibraError, ValueError):
 class RowOutcome:
     row: int  # 1-based data row (CSV: line after the header; SDF: record number)
     name: str
-    status: str  # 'added' | 'present' | 'rejected'
+    status: str  # 'added' | 'present' | 'rejected' | 'would be added' (in a refused import)
     message: str
     material_id: int | None = None
 
@@ -99,8 +104,9 @@ class ImportReport:
         return [r for r in self.rows if r.status == "rejected"]
 
     def summary(self) -> str:
-        text = (f"{self.count('added')} added, {self.count('present')} already present, "
-                f"{self.count('rejected')} rejected")
+        added = (f"{self.count('added')} added" if self.committed or not self.count("would be added")
+                 else f"0 added ({self.count('would be added')} would have been added)")
+        text = f"{added}, {self.count('present')} already present, {self.count('rejected')} rejected"
         if self.rejected and not self.committed:
             text += "; nothing was imported (fix the rejected rows, or keep the good rows to store those)"
         return text
@@ -303,7 +309,7 @@ def _json_record_fields(record: dict) -> dict[str, str]:
         raise TypeError
     fields: dict[str, str] = {}
     for key, value in record.items():
-        if key in ("synonyms", "odor", "odor_sources", "restricted"):
+        if key in ("synonyms", "odor", "odor_sources", "restricted", "restrictions"):
             continue
         if key in CSV_COLUMNS:
             if not isinstance(value, str):
@@ -333,6 +339,10 @@ def _json_record_fields(record: dict) -> dict[str, str]:
     if not isinstance(restricted, bool):
         raise TypeError
     fields["restricted"] = "yes" if restricted else "no"
+    entries = record.get("restrictions", [])
+    if not isinstance(entries, list):
+        raise TypeError
+    fields["restrictions"] = json.dumps(entries) if entries else ""
     return fields
 
 
@@ -425,6 +435,7 @@ def stage_rows(rows: Iterable[InputRow], *, max_heavy_atoms: int | None = None,
             _check_inchikey(row, draft.structure.inchikey)
             draft.status = row.fields.get("status", "").strip().lower() or "active"
             draft.restricted = _yes_no(row.fields.get("restricted", ""), "restricted")
+            draft.restrictions = restrictions.from_records(row.fields.get("restrictions", ""))
             key = draft.structure.inchikey
             if key in seen_in_file:
                 staged.append(StagedRow(row.row, name, repeat_of=seen_in_file[key]))
@@ -461,7 +472,18 @@ def store_staged(session: Session, staged: list[StagedRow], *, keep_good: bool =
         except (StructureError, CurationError) as exc:
             report.rows.append(RowOutcome(item.row, item.name, "rejected", str(exc)))
     report.committed = keep_good or not report.rejected
+    if not report.committed:
+        report.rows = [_not_stored(r) for r in report.rows]
     return report
+
+
+def _not_stored(outcome: RowOutcome) -> RowOutcome:
+    """A row of a refused import: what it would have done, without the id nothing was given."""
+    if outcome.status != "added":
+        return outcome
+    return RowOutcome(outcome.row, outcome.name, "would be added",
+                      f"{outcome.name} would have been added; nothing was stored because the import was refused",
+                      None)
 
 
 def import_rows(session: Session, rows: Iterable[InputRow], *, keep_good: bool = False,
@@ -531,7 +553,8 @@ def import_into(catalogue, rows: Iterable[InputRow], *, keep_good: bool = False,
 def _materials(session: Session, *, include_retired: bool = True) -> list[Material]:
     query = select(Material).options(
         selectinload(Material.synonyms), selectinload(Material.provenance),
-        selectinload(Material.odors).selectinload(MaterialOdor.descriptor)).order_by(Material.id)
+        selectinload(Material.odors).selectinload(MaterialOdor.descriptor),
+        selectinload(Material.restrictions)).order_by(Material.id)
     if not include_retired:
         query = query.where(Material.status == "active")
     return list(session.scalars(query))
@@ -564,6 +587,7 @@ def material_fields(material: Material) -> dict[str, str]:
         "inchikey": material.inchikey,
         "status": material.status,
         "restricted": "yes" if material.restricted else "no",
+        "restrictions": restrictions.to_text(material),
         "odor_sources": json.dumps(odor_sources, ensure_ascii=False, sort_keys=True) if odor_sources else "",
     }
     for column, field_name in SOURCE_COLUMNS.items():
@@ -617,12 +641,15 @@ def export_materials(session: Session, fmt: str, *, include_retired: bool = True
                           average_mass_g_per_mol=round(material.average_mass_g_per_mol, 4),
                           monoisotopic_mass_da=round(material.monoisotopic_mass_da, 6),
                           stereo_status=material.stereo_status, restricted=material.restricted,
+                          restrictions=restrictions.as_records(material),
+                          restriction_tags=restrictions.tags(material),
                           synonyms=[s.name for s in material.synonyms],
                           odor=[{"term": o.descriptor.term, "strength": o.strength,
                                  "source": str(Source(o.source_kind, o.source_reference))}
                                 for o in sorted(material.odors, key=lambda o: o.descriptor.term)])
             records.append(record)
-        yield json.dumps({"format": "olibra-materials", "version": 1, "materials": records}, indent=2)
+        yield json.dumps({"format": "olibra-materials", "version": 1, "regulatory_note": restrictions.DISCLAIMER,
+                          "materials": records}, indent=2)
         yield "\n"
     else:
         raise OlibraError(f"unknown export format {fmt!r}; use csv, sdf or json")

@@ -45,6 +45,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "export": ("catalogue_commands", "export the catalogue as CSV, SDF or JSON"),
     "vocabulary": ("catalogue_commands", "list or extend the odor descriptor vocabulary"),
     "status": ("catalogue_commands", "retire, reactivate, restrict or unrestrict a material"),
+    "restriction": ("restriction_commands", "add, list or remove a material's recorded restriction entries"),
     "compute": ("compute_commands", "compute shape and/or vibration records (missing or stale ones by default)"),
     "compute-status": ("compute_commands", "count current, stale and missing computed records"),
     "search": ("search_commands", "rank substitutes for a material or a new structure"),
@@ -124,6 +125,9 @@ def build_parser(*, complete: bool = False) -> argparse.ArgumentParser:
                              "your data directory)")
     parser.add_argument("--here", action="store_true",
                         help="use ./catalogue.sqlite in the working directory as the default catalogue")
+    parser.add_argument("--actor", metavar="NAME",
+                        help="attribute this command's changes to NAME (default: $OLIBRA_ACTOR, else your "
+                             "login name)")
     parser.register("action", "parsers", LazyCommands)
     commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=ArgumentParser)
     commands.required = True
@@ -137,6 +141,8 @@ def build_parser(*, complete: bool = False) -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    if args.actor and args.actor.strip():
+        os.environ["OLIBRA_ACTOR"] = args.actor.strip()  # read by curation.current_actor (this process only)
     try:
         return int(args.handler(args) or 0)
     except OlibraError as exc:

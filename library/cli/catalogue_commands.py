@@ -10,7 +10,7 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import selectinload
 
 from library import computations
-from library.catalogue import curation, records, transfer
+from library.catalogue import curation, records, restrictions, transfer
 from library.catalogue.database import Catalogue, describe_url, initialize, resolve_url
 from library.catalogue.models import (
     AuditEntry,
@@ -69,6 +69,8 @@ def cmd_show(args) -> int:
         lines = [
             f"#{m.id}  {m.preferred_name}" + ("  [retired]" if m.status == "retired" else "")
             + ("  [restricted]" if m.restricted else ""),
+            *[f"  restriction     {restrictions.describe(r)}" for r in m.restrictions],
+            *([f"                  {restrictions.DISCLAIMER}"] if m.restrictions else []),
             f"  synonyms        {', '.join(s.name for s in m.synonyms) or '-'}",
             f"  CAS RN          {m.cas_rn or '-'}",
             f"  SMILES          {m.smiles}",
@@ -108,10 +110,18 @@ def cmd_show(args) -> int:
             entries = session.scalars(select(AuditEntry).where(
                 AuditEntry.entity == "material", AuditEntry.entity_id == m.id).order_by(AuditEntry.id)).all()
             for e in entries:
-                change = f"{e.field}: {e.old_value} -> {e.new_value}" if e.field else (e.new_value or "")
+                change = (f"{e.field}: {_readable(e.old_value)} -> {_readable(e.new_value)}" if e.field
+                          else (e.new_value or ""))
                 lines.append(f"  history         {e.at:%Y-%m-%d %H:%M} {e.actor} {e.action} {change}")
     print("\n".join(lines))
     return 0
+
+
+def _readable(value: str | None) -> str:
+    """An audited value as a person reads it: '(none)' for nothing, 'yes'/'no' for flags."""
+    if value is None or value == "":
+        return "(none)"
+    return {"True": "yes", "False": "no"}.get(value, repr(value) if value != value.strip() else value)
 
 
 def summary_lines(summary: dict) -> list[str]:
@@ -134,13 +144,20 @@ def cmd_list(args) -> int:
             query = query.where(Material.id.in_(
                 select(MaterialOdor.material_id).join(OdorDescriptor)
                 .where(OdorDescriptor.term == args.odor.lower())))
+        query = query.options(selectinload(Material.restrictions))
+        materials = [m for m in session.scalars(query)
+                     if not restrictions.excluded(m, prohibited=args.exclude_prohibited,
+                                                  restricted=args.exclude_restricted)]
         rows = [{"id": m.id, "name": m.preferred_name, "cas": m.cas_rn, "formula": m.formula,
                  "mass": m.average_mass_g_per_mol, "family": m.olfactive_family,
-                 "odor": ", ".join(sorted(o.descriptor.term for o in m.odors)), "status": m.status}
-                for m in session.scalars(query)]
-    emit(rows, ["id", "name", "cas", "formula", "mass", "family", "odor", "status"], args.format)
+                 "odor": ", ".join(sorted(o.descriptor.term for o in m.odors)), "status": m.status,
+                 "regulatory": restrictions.tags(m)}
+                for m in materials]
+    emit(rows, ["id", "name", "cas", "formula", "mass", "family", "odor", "status", "regulatory"], args.format)
     if args.format == "table":
         print(f"{len(rows)} material(s)")
+        if any(row["regulatory"] for row in rows):
+            print(restrictions.DISCLAIMER)
     return 0
 
 
@@ -243,6 +260,10 @@ def register(commands) -> None:
     p.add_argument("--all", action="store_true", help="include retired materials")
     p.add_argument("--family", help="only this olfactive family")
     p.add_argument("--odor", help="only materials with this odor descriptor")
+    p.add_argument("--exclude-prohibited", action="store_true",
+                   help="leave out materials with a recorded 'prohibited' entry")
+    p.add_argument("--exclude-restricted", action="store_true",
+                   help="leave out materials with a recorded 'prohibited' or 'restricted' entry")
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_list)
 

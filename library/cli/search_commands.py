@@ -6,7 +6,7 @@ import json
 import sys
 from pathlib import Path
 
-from library.catalogue import curation, observations
+from library.catalogue import curation, observations, restrictions
 from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
@@ -51,10 +51,22 @@ def store_query(catalogue, args) -> str:
     return str(outcome.material.id)
 
 
+def check_terms(catalogue, args) -> None:
+    """Refuse odor terms outside the vocabulary, with the same message as the web."""
+    if not (args.with_odor or args.without_odor):
+        return
+    with catalogue.reading() as session:
+        known = set(curation.vocabulary(session))
+    where = "`olibra vocabulary list`"
+    curation.check_odor_terms(args.with_odor or (), known, label="--with-odor", where=where)
+    curation.check_odor_terms(args.without_odor or (), known, label="--without-odor", where=where)
+
+
 def cmd_search(args) -> int:
     catalogue = open_catalogue(args)
     if args.store_as:
         args.query = store_query(catalogue, args)
+    check_terms(catalogue, args)
     filters = build_filter(
         mw_range=_range(args.mw), logp_range=_range(args.logp), must_have=args.with_odor or (),
         must_not_have=args.without_odor or (), include_retired=args.include_retired,
@@ -63,17 +75,23 @@ def cmd_search(args) -> int:
         catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
         rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine,
         include_demo=args.include_demo)
-    print_substitutes(outcome, fmt=args.format, explain=args.explain, rerank_depth=args.rerank_depth)
+    with catalogue.reading() as session:
+        tags = restrictions.tags_by_id(session, [c.material.id for c in outcome.candidates])
+    print_substitutes(outcome, fmt=args.format, explain=args.explain, rerank_depth=args.rerank_depth,
+                      regulatory=tags)
     return 0
 
 
 def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bool = False,
-                      rerank_depth: int = DEFAULT_RERANK_DEPTH) -> None:
-    """Candidates with every metric's score and rank (table: 'score (rank)')."""
+                      rerank_depth: int = DEFAULT_RERANK_DEPTH, regulatory: dict[int, str] | None = None) -> None:
+    """Candidates with every metric's score and rank (table: 'score (rank)'), and the restriction tags
+    curators recorded (`regulatory`: {material id: tags})."""
+    regulatory = regulatory or {}
     rows = []
     for c in outcome.candidates:
         row = {"rank": c.rank, "id": c.material.id, "name": c.material.name,
-               "odor": ", ".join(c.material.odors), "smiles": c.material.smiles}
+               "odor": ", ".join(c.material.odors), "smiles": c.material.smiles,
+               "regulatory": regulatory.get(c.material.id, "")}
         for metric in metrics.names():
             if metric in c.scores:
                 if fmt == "table":
@@ -87,9 +105,9 @@ def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bo
     present = [m for m in metrics.names() if any(m in r for r in rows)]
     columns = ["rank", "id", "name"] + present
     if fmt != "table":
-        columns += [f"{m}_rank" for m in present] + ["odor", "smiles"]
+        columns += [f"{m}_rank" for m in present] + ["odor", "smiles", "regulatory"]
     else:
-        columns += ["odor"]
+        columns += ["odor", "regulatory"]
     if explain:
         columns += ["volume_ratio", "bands_matched", "bands_unmatched"]
     if fmt == "table":
@@ -104,6 +122,8 @@ def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bo
         for note in outcome.notes:
             print(f"note: {note}")
         print(f"caution: {outcome.caution}")
+        if any(row["regulatory"] for row in rows):
+            print(f"regulatory: {restrictions.DISCLAIMER}")
 
 
 def _explanation_fields(explanation: dict) -> dict:
