@@ -228,14 +228,14 @@ def test_add_material_stores_it_with_audit(client, catalogue):
 
 
 @pytest.mark.parametrize("values, message", [
-    ({"name": ""}, "Give the material a name."),
-    ({"structure": ""}, "Give the structure as SMILES"),
+    ({"name": ""}, "every material needs a name"),
+    ({"structure": ""}, "structure is empty"),
     ({"structure": "C1CC(C"}, "SMILES"),
     ({"cas": "121-33-6"}, "check digit"),
     ({"odors": "vanilla, moonlight"}, "moonlight not in the vocabulary"),
     ({"odors": "vanilla:7"}, "outside 0-1"),
     ({"source": "a friend told me"}, "does not start with one of"),
-    ({"name": "Citral"}, "already used by"),
+    ({"name": "Citral"}, "is already the name of"),
 ])
 def test_add_material_form_validation(client, catalogue, values, message):
     token = sign_in(client, "cora")
@@ -243,6 +243,32 @@ def test_add_material_form_validation(client, catalogue, values, message):
     assert response.status_code == 400
     assert message in response.text and "Traceback" not in response.text
     assert material_count(catalogue) == len(SEED_NAMES)
+
+
+def test_add_material_reports_every_problem_beside_its_field_in_one_pass(client, catalogue):
+    token = sign_in(client, "cora")
+    response = client.post("/materials/new", data=add_form(
+        token, name="", cas="121-33-6", odors="vanilla, moonlight", source="a friend told me"))
+    assert response.status_code == 400
+    page = response.text
+    for message in ("every material needs a name", "has check digit 6", "moonlight not in the vocabulary",
+                    "does not start with one of"):
+        assert page.count(message) == 1, message
+    # each message sits inside its own field's block, not in a banner above the form
+    fields = re.findall(r'<div class="field has-error">(.*?)</div>', page, flags=re.S)
+    assert len(fields) == 4
+    assert any('name="cas"' in block and "has check digit 6" in block for block in fields)
+    assert any('name="odors"' in block and "moonlight" in block for block in fields)
+    assert material_count(catalogue) == len(SEED_NAMES)
+
+
+def test_a_known_structure_is_reported_before_the_other_fields(client, catalogue):
+    token = sign_in(client, "cora")
+    citral = material_id(catalogue, "Citral")
+    response = client.post("/materials/new", data=add_form(token, structure="CC(C)=CCCC(C)=CC=O",
+                                                           name="", cas="121-33-6"))
+    assert response.status_code == 409
+    assert f'href="/materials/{citral}"' in response.text and "has check digit" not in response.text
 
 
 def test_adding_a_known_structure_points_to_the_existing_record(client, catalogue):
@@ -293,7 +319,7 @@ def test_edit_material_audits_every_change(client, catalogue):
     ({"cas": "5392-40-5"}, "already used by"),
     ({"cas": "106-26-4"}, "check digit"),
     ({"odors": "lemon, stardust"}, "stardust not in the vocabulary"),
-    ({"name": ""}, "Give the material a name."),
+    ({"name": ""}, "every material needs a name"),
 ])
 def test_a_refused_edit_changes_nothing(client, catalogue, change, message):
     sign_in(client, "cora")
@@ -614,7 +640,11 @@ def test_api_reads_and_writes(client, catalogue):
     again = client.post("/api/materials", headers=headers, json={"structure": COUMARIN, "name": "Coumarin again"})
     assert again.status_code == 409 and again.get_json()["existing"]["id"] == body["id"]
 
-    for payload, message in [({"name": "Vanillin"}, "'structure' is required"),
+    refused = client.post("/api/materials", headers=headers, json={
+        "structure": "C1CC(C", "name": "", "cas": "121-33-6", "odors": ["moonlight"]})
+    assert refused.status_code == 400
+    assert set(refused.get_json()["error"]["fields"]) == {"structure", "name", "cas", "odors"}
+    for payload, message in [({"name": "Vanillin"}, "structure is empty"),
                              ({"structure": VANILLIN, "name": "Vanillin", "colour": "white"}, "unknown field"),
                              ({"structure": "not a molecule", "name": "Vanillin"}, "SMILES")]:
         refused = client.post("/api/materials", headers=headers, json=payload)
