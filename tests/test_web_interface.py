@@ -499,6 +499,41 @@ def test_a_recompute_job_runs_on_the_dask_cluster_the_server_is_configured_with(
     assert "NPR1" in octanal and "tag-current" in octanal
 
 
+def test_an_added_material_gets_its_records_queued_and_shows_the_job(app, client, catalogue):
+    app.config["OLIBRA_COMPUTE_ON_ADD"] = True
+    token = sign_in(client, "cora")
+    response = client.post("/materials/new", data=add_form(token))
+    assert response.status_code == 302
+    vanillin = int(response.headers["Location"].rsplit("/", 1)[1])
+    page = client.get(f"/materials/{vanillin}").text
+    assert 'id="material-job"' in page and f"material #{vanillin}" in page
+    job_id = int(re.search(r'href="/jobs/(\d+)"', page.split('id="material-job"')[1]).group(1))
+    job = wait_for_job(client, job_id)
+    assert job["state"] == "finished" and (job["total"], job["done"], job["failed"]) == (1, 1, 0), job
+    assert job["parameters"]["material_ids"] == [vanillin]
+    page = client.get(f"/materials/{vanillin}").text
+    assert "NPR1" in page and page.count("tag-current") == 2  # shape and vibration records
+    # compute now: every record is current, so the job has nothing to do and says so
+    again = client.post(f"/materials/{vanillin}/compute", data={"csrf_token": token}, follow_redirects=True)
+    assert "computes this material" in again.text and "tag-finished" in again.text
+    assert client.post(f"/materials/{vanillin}/compute", data={}).status_code == 400  # no CSRF token
+    sign_in(client, "rhea")
+    assert "Compute now" not in client.get(f"/materials/{vanillin}").text
+    assert client.post(f"/materials/{vanillin}/compute", data={"csrf_token": token}).status_code in (400, 403)
+
+
+def test_compute_now_waits_behind_a_running_job(app, client, catalogue):
+    bookkeeping = app.extensions["olibra"].bookkeeping
+    with bookkeeping.begin() as session:
+        session.add(BackgroundJob(kind="recompute", description="recompute shape records", state="running",
+                                  total=5, done=2, created_by="cora"))
+    token = sign_in(client, "cora")
+    octanal = material_id(catalogue, "Octanal")
+    client.post(f"/materials/{octanal}/compute", data={"csrf_token": token})
+    page = client.get(f"/materials/{octanal}").text.split('id="material-job"')[1]
+    assert "tag-queued" in page and f"material #{octanal}" in page
+
+
 def test_only_one_recompute_at_a_time_and_abandoned_jobs_are_marked(app, client, catalogue):
     bookkeeping = app.extensions["olibra"].bookkeeping
     with bookkeeping.begin() as session:

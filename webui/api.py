@@ -22,7 +22,7 @@ from library.errors import OlibraError
 from webui import db_session, queries, web_state, write_transaction
 from webui.auth import SignInThrottled, checked_sign_in, end_session, start_session
 from webui.curation import material_input, run_import
-from webui.jobs import record_counts, start
+from webui.jobs import queue_new_materials, record_counts, start
 
 blueprint = Blueprint("api", __name__, url_prefix="/api")
 
@@ -163,6 +163,7 @@ def add_material():
             body = queries.material_json(outcome.material, detail=True)
     except curation.FieldErrors as exc:
         return jsonify(error={"status": 400, "message": str(exc), "fields": exc.errors}), 400
+    body["compute_job"] = queue_new_materials([body["id"]])
     return jsonify(body), 201
 
 

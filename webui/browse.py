@@ -40,6 +40,7 @@ def material(material_id: int):
         "browse/material.html", material=found, records=records,
         missing_kinds=queries.missing_kinds(records), shape=queries.shape_summary(records),
         history=queries.audit_history(session, found.id), flags=queries.pair_flags(session, found.id),
+        job=queries.latest_job_for(session, found.id),
         summary_rows=queries.summary_rows, provenance_text=queries.provenance_text)
 
 

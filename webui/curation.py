@@ -15,7 +15,7 @@ from library.catalogue.curation import FieldErrors
 from library.catalogue.edits import MaterialChanges, apply_changes, odor_text
 from library.catalogue.models import Material, MaterialOdor
 from library.errors import OlibraError
-from webui import begin_write, db_session, queries, write_transaction
+from webui import begin_write, db_session, jobs, queries, write_transaction
 from webui.errors import user_message
 from webui.forms import (
     EditMaterialForm,
@@ -90,6 +90,7 @@ def add_material():
                         session, draft, actor=current_user.username)
                 if outcome is not None and outcome.added:
                     flash(f"Added #{outcome.material.id} {outcome.material.preferred_name}.", "success")
+                    jobs.queue_new_materials([outcome.material.id])
                     return redirect(url_for("browse.material", material_id=outcome.material.id))
                 existing = existing or outcome.material
                 status = 409
@@ -163,7 +164,9 @@ def edit_material(material_id: int):
 
 def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source: str | None,
                actor: str) -> transfer.ImportReport:
-    """Import an uploaded file in one transaction; stored only if no row was rejected or `keep_good`."""
+    """Import an uploaded file in one transaction; stored only if no row was rejected or `keep_good`.
+
+    The added materials' shape and vibration records are then queued as one background job."""
     suffix = Path(secure_filename(filename or "")).suffix.lower()
     if suffix not in IMPORT_SUFFIXES:
         raise transfer.ImportFileError(
@@ -181,6 +184,9 @@ def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source:
     except BaseException:
         session.rollback()
         raise
+    if report.committed:
+        jobs.queue_new_materials([r.material_id for r in report.rows
+                                  if r.status == "added" and r.material_id is not None])
     return report
 
 
