@@ -522,11 +522,17 @@ def test_an_added_material_gets_its_records_queued_and_shows_the_job(app, client
     assert client.post(f"/materials/{vanillin}/compute", data={"csrf_token": token}).status_code in (400, 403)
 
 
-def test_compute_now_waits_behind_a_running_job(app, client, catalogue):
+def a_job_seems_to_run(app):
+    """A job row left 'running' (no thread behind it), as a busy server would show; returns the bookkeeping."""
     bookkeeping = app.extensions["olibra"].bookkeeping
     with bookkeeping.begin() as session:
         session.add(BackgroundJob(kind="recompute", description="recompute shape records", state="running",
                                   total=5, done=2, created_by="cora"))
+    return bookkeeping
+
+
+def test_compute_now_waits_behind_a_running_job(app, client, catalogue):
+    a_job_seems_to_run(app)
     token = sign_in(client, "cora")
     octanal = material_id(catalogue, "Octanal")
     client.post(f"/materials/{octanal}/compute", data={"csrf_token": token})
@@ -535,10 +541,7 @@ def test_compute_now_waits_behind_a_running_job(app, client, catalogue):
 
 
 def test_only_one_recompute_at_a_time_and_abandoned_jobs_are_marked(app, client, catalogue):
-    bookkeeping = app.extensions["olibra"].bookkeeping
-    with bookkeeping.begin() as session:
-        session.add(BackgroundJob(kind="recompute", description="recompute shape records", state="running",
-                                  total=5, done=2, created_by="cora"))
+    bookkeeping = a_job_seems_to_run(app)
     token = sign_in(client, "cora")
     response = client.post("/jobs/recompute", data={"csrf_token": token, "kinds": "shape", "engine": "mmff"},
                            follow_redirects=True)
