@@ -20,8 +20,9 @@ from rdkit import Chem
 from sqlalchemy import func, select
 
 from library import computations
-from library.catalogue import accounts, curation, records
+from library.catalogue import accounts, curation, observations, records
 from library.catalogue.models import AuditEntry, BackgroundJob, Material, PairFlag, User
+from library.search import disagreements
 from webui import SecretKeyMissing, create_app
 from webui.background import mark_abandoned
 
@@ -201,6 +202,50 @@ def test_pair_flags_are_listed_with_the_caution(client, catalogue):
     page = client.get(f"/materials/{r_id}").text
     assert "enantiomers" in page and "(S)-(-)-Limonene" in page
     assert "not a safety or regulatory finding" in page and "IFRA Standards" in page
+
+
+def test_pair_flags_can_be_edited_and_withdrawn_with_history(client, catalogue):
+    r_id, s_id = material_id(catalogue, "(R)-(+)-Limonene"), material_id(catalogue, "(S)-(-)-Limonene")
+    with catalogue.transaction() as session:
+        flag = PairFlag(material_a_id=min(r_id, s_id), material_b_id=max(r_id, s_id),
+                        kind="other", note="first look", created_by="cora")
+        session.add(flag)
+        session.flush()
+        flag_id = flag.id
+    token = sign_in(client, "cora")
+    page = client.get(f"/materials/{r_id}").text
+    assert f'action="/flags/{flag_id}/edit"' in page and f'action="/flags/{flag_id}/withdraw"' in page
+    back = f"/materials/{r_id}"
+    edited = client.post(f"/flags/{flag_id}/edit", data={"csrf_token": token, "kind": "vibration-alike smell-different",
+                                                         "note": "panel says different", "next": back})
+    assert edited.status_code == 303 and edited.headers["Location"] == back
+    refused = client.post(f"/flags/{flag_id}/edit", data={"csrf_token": token, "kind": "smells nice", "next": back},
+                          follow_redirects=True)
+    assert "The flag was not changed" in refused.text and "is not one of" in html.unescape(refused.text)
+    withdrawn = client.post(f"/flags/{flag_id}/withdraw", data={"csrf_token": token, "next": back},
+                            follow_redirects=True)
+    assert "was withdrawn" in withdrawn.text and "No pair flags." in withdrawn.text
+    with catalogue.reading() as session:
+        assert session.get(PairFlag, flag_id) is None
+        trail = session.scalars(select(AuditEntry).where(AuditEntry.entity == "pair_flag",
+                                                         AuditEntry.entity_id == flag_id)
+                                .order_by(AuditEntry.id)).all()
+        assert [e.action for e in trail] == ["update", "withdraw"]
+        assert trail[0].old_value.endswith("other: first look")
+        assert trail[0].new_value.endswith("vibration-alike smell-different: panel says different")
+        assert trail[1].actor == "cora"
+    sign_in(client, "rhea")
+    assert client.post(f"/flags/{flag_id}/withdraw", data={"csrf_token": token}).status_code in (400, 403)
+
+
+def test_the_default_flag_kind_follows_the_direction_and_the_observation():
+    # the kinds' own wording: a pair the shape metric calls alike but that smells different, and so on
+    assert disagreements.default_flag_kind("shape-not-vibration") == "shape-alike smell-different"
+    assert disagreements.default_flag_kind("shape-not-vibration", "shape") == "vibration-unalike smell-alike"
+    assert disagreements.default_flag_kind("vibration-not-shape") == "vibration-alike smell-different"
+    assert disagreements.default_flag_kind("vibration-not-shape", "vibration") == "shape-unalike smell-alike"
+    assert {disagreements.default_flag_kind(d, m) for d in disagreements.DIRECTIONS
+            for m in (None, "shape", "vibration")} <= set(observations.FLAG_KINDS)
 
 
 # --- adding and editing ----------------------------------------------------------------------------
