@@ -775,3 +775,21 @@ def test_api_bad_paging_arguments(client):
                                ({"q": "x" * 300}, "at most 200")]:
         response = client.get("/api/materials", query_string=arguments)
         assert response.status_code == 400 and message in response.get_json()["error"]["message"], arguments
+
+
+def test_the_npr_triangle_labels_both_axes_and_keeps_its_labels_apart():
+    from webui.charts import npr_triangle_svg
+
+    svg = str(npr_triangle_svg(0.243, 0.841, name="Citral"))
+    labels = dict((text, (float(x), float(y))) for x, y, text in
+                  re.findall(r'<text class="axis-label" x="([\d.]+)" y="([\d.]+)"[^>]*>([^<]+)</text>', svg))
+    assert set(labels) == {"NPR1", "NPR2"}
+    corners = {text: (float(x), float(y)) for x, y, text in
+               re.findall(r'<text class="tick corner" x="([\d.]+)" y="([\d.]+)"[^>]*>([^<]+)</text>', svg)}
+    assert set(corners) == {"rod", "disc", "sphere"}
+    ticks = [(float(x), float(y)) for x, y in re.findall(r'<text class="tick" x="([\d.]+)" y="([\d.]+)"', svg)]
+    # every label anchor is more than a 10 px text line from every other (the disc and NPR1 labels were 10 px apart)
+    anchors = [*labels.values(), *corners.values(), *ticks]
+    for i, (x1, y1) in enumerate(anchors):
+        for x2, y2 in anchors[i + 1:]:
+            assert abs(x1 - x2) >= 20 or abs(y1 - y2) >= 12, ((x1, y1), (x2, y2))

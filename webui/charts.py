@@ -150,8 +150,8 @@ def npr_triangle_svg(npr1: float, npr2: float, *, name: str = "", size: int = 24
 
     NPR1 runs 0-1 on the horizontal axis and NPR2 0.5-1 on the vertical axis, each with its
     ticks and label; the corner names sit outside the triangle, clear of the ticks."""
-    left, right, top, bottom = 46, 18, 26, 46
-    width, height = size, size
+    left, right, top, bottom = 62, 18, 26, 46
+    width, height = size + 16, size
     span_x, span_y = width - left - right, height - top - bottom
 
     def point(x, y):  # NPR1 on the horizontal axis 0-1, NPR2 on the vertical axis 0.5-1
