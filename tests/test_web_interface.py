@@ -793,3 +793,28 @@ def test_the_npr_triangle_labels_both_axes_and_keeps_its_labels_apart():
     for i, (x1, y1) in enumerate(anchors):
         for x2, y2 in anchors[i + 1:]:
             assert abs(x1 - x2) >= 20 or abs(y1 - y2) >= 12, ((x1, y1), (x2, y2))
+
+
+def test_the_change_history_filters_by_user_date_and_material(client, catalogue):
+    token = sign_in(client, "cora")
+    assert client.post("/materials/new", data=add_form(token)).status_code == 302
+    neral = material_id(catalogue, "Neral")
+    form = edit_form(client, neral)
+    form.update(family="changed")
+    assert client.post(f"/materials/{neral}/edit", data=form).status_code == 302
+    sign_in(client, "rhea")  # readers see the history too
+    everything = client.get("/history").text
+    assert "Change history" in everything and "<td>cora</td>" in everything
+    # cora's changes: the added material, and on Neral the family with the source of the new value
+    by_cora = client.get("/history", query_string={"user": "cora"}).text
+    assert by_cora.count("<td>cora</td>") == 3 and "changed" in by_cora
+    neral_only = html.unescape(client.get("/history", query_string={"user": "cora", "material": "Neral"}).text)
+    assert neral_only.count("<td>cora</td>") == 2 and f"material #{neral}" in neral_only
+    assert "<td>create</td>" not in neral_only
+    today = time.strftime("%Y-%m-%d", time.gmtime())
+    assert client.get("/history", query_string={"user": "cora", "since": today}).text.count("<td>cora</td>") == 3
+    assert "No changes match." in client.get("/history", query_string={"user": "cora", "until": "2000-01-01"}).text
+    bad = client.get("/history", query_string={"since": "yesterday"})
+    assert bad.status_code == 400 and "YYYY-MM-DD" in bad.text
+    unknown = client.get("/history", query_string={"material": "no such thing"})
+    assert unknown.status_code == 400 and "no material matches" in unknown.text

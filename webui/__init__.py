@@ -209,6 +209,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         disagreements,
         errors,
         health,
+        history,
         jobs,
         scorecard,
         search_api,
@@ -217,8 +218,8 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     auth.init_app(app)
     errors.init_app(app)
-    for module in (auth, accounts, browse, curation, jobs, substitutes, compare, disagreements, scorecard, api,
-                   search_api, health):
+    for module in (auth, accounts, browse, curation, jobs, history, substitutes, compare, disagreements, scorecard,
+                   api, search_api, health):
         app.register_blueprint(module.blueprint)
     return app
 

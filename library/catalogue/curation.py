@@ -7,6 +7,7 @@ per user action); none commits on its own.
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import getpass
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -459,6 +460,55 @@ def audit(session: Session, *, actor: str, action: str, material: Material, fiel
     session.add(AuditEntry(actor=actor, action=action, entity="material", entity_id=material.id,
                            field=field_name, old_value=None if old is None else str(old),
                            new_value=None if new is None else str(new)))
+
+
+@dataclass(frozen=True)
+class HistoryPage:
+    entries: list[AuditEntry]
+    total: int
+    page: int
+    per_page: int
+
+    @property
+    def pages(self) -> int:
+        return max(1, -(-self.total // self.per_page))
+
+
+def _day(text: str | None, what: str) -> dt.date | None:
+    text = (text or "").strip()
+    if not text:
+        return None
+    try:
+        return dt.date.fromisoformat(text)
+    except ValueError:
+        raise CurationError(f"{what} date {text[:20]!r} is not a date of the form YYYY-MM-DD (e.g. 2026-03-01)") from None
+
+
+def change_history(session: Session, *, actor: str | None = None, since: str | None = None,
+                   until: str | None = None, material: str | None = None, page: int = 1,
+                   per_page: int = 100) -> HistoryPage:
+    """The catalogue-wide audit trail, newest first, filtered by who, from/until which day (UTC,
+    inclusive, YYYY-MM-DD) and which material (any key find_material accepts; its own changes)."""
+    conditions = []
+    if (actor or "").strip():
+        conditions.append(func.lower(AuditEntry.actor) == actor.strip().lower())
+    first, last = _day(since, "from"), _day(until, "until")
+    if first and last and first > last:
+        raise CurationError(f"the from date {first} is after the until date {last}; swap them")
+    if first:
+        conditions.append(AuditEntry.at >= dt.datetime.combine(first, dt.time(), dt.timezone.utc))
+    if last:
+        conditions.append(AuditEntry.at < dt.datetime.combine(last + dt.timedelta(days=1), dt.time(),
+                                                              dt.timezone.utc))
+    if (material or "").strip():
+        found = find_material(session, material)
+        conditions += [AuditEntry.entity == "material", AuditEntry.entity_id == found.id]
+    if page < 1 or not 1 <= per_page <= 500:
+        raise CurationError("page must be 1 or more and per_page from 1 to 500")
+    total = session.scalar(select(func.count()).select_from(AuditEntry).where(*conditions)) or 0
+    entries = list(session.scalars(select(AuditEntry).where(*conditions).order_by(AuditEntry.id.desc())
+                                   .offset((page - 1) * per_page).limit(per_page)))
+    return HistoryPage(entries, total, page, per_page)
 
 
 def set_status(session: Session, material: Material, status: str, *, actor: str | None = None) -> None:
