@@ -45,6 +45,26 @@ def test_material_page_with_depiction(signed_in, expect, screenshot):
     assert page.console_errors == []
 
 
+def test_three_mistakes_are_shown_beside_their_fields_after_one_submit(signed_in, live_server, expect, screenshot):
+    page = signed_in
+    page.set_viewport_size({"width": 390, "height": 900})  # a phone: the menu opens from its toggle
+    page.click("label.nav-toggle-label")
+    page.click("nav >> text=Add material")
+    page.fill("#structure", "C1CC(C")  # a broken SMILES (unclosed ring and branch)
+    page.fill("#cas", "121-33-6")  # wrong check digit
+    page.fill("#odors", "vanilla, moonlight")  # not a vocabulary term; the name is left empty
+    page.click("button:has-text('Add material')")
+    errors = page.locator(".field.has-error")
+    expect(errors).to_have_count(4)
+    for field_id, words in (("structure", "SMILES"), ("name", "needs a name"), ("cas", "check digit 6"),
+                            ("odors", "moonlight")):
+        expect(page.locator(f".field.has-error:has(#{field_id}) .error")).to_contain_text(words)
+    screenshot(page, "add-material-errors-390")
+    assert page.evaluate("document.scrollingElement.scrollWidth <= innerWidth")
+    with live_server.catalogue.reading() as session:
+        assert {m.preferred_name for m in session.scalars(select(Material))} == set(live_server.seed_names)
+
+
 def test_add_material_then_duplicate_points_to_it(signed_in, live_server, expect, screenshot):
     page = signed_in
     page.click("nav >> text=Add material")
