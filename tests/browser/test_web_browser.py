@@ -126,6 +126,26 @@ def test_vocabulary_page(signed_in, expect, screenshot):
     screenshot(page, "vocabulary")
 
 
+def test_compute_now_from_the_material_page_shows_the_job_and_then_the_records(signed_in, expect, screenshot):
+    page = signed_in
+    page.goto("/")
+    page.click("text=Eugenol")
+    page.click("button:has-text('Compute now')")
+    expect(page.locator(".flash-success")).to_contain_text("computes this material's records")
+    expect(page.locator("#material-job")).to_contain_text("compute shape, vibration records of material #")
+    screenshot(page, "material-compute-now")
+    for _ in range(180):  # the page does not poll; reload until the job ends (the limit only stops a hang)
+        state = page.locator("#material-job .tag").inner_text()
+        if state not in ("queued", "running"):
+            break
+        page.wait_for_timeout(1000)
+        page.reload()
+    assert state == "finished"
+    expect(page.locator("#material-job")).to_contain_text("1 of 1 material done")
+    expect(page.locator(".shape-values")).to_contain_text("NPR1")
+    assert page.locator("table.records .tag-current").count() == 2  # shape and vibration
+
+
 def test_recompute_progress_follows_the_job(signed_in, live_server, expect, screenshot):
     """Runs last: retires all but one material so that the job is short."""
     with live_server.catalogue.transaction() as session:
