@@ -57,6 +57,7 @@ def app(catalogue, tmp_path):
     """The web application (testing mode) on `catalogue`, with one recompute worker process and its own
     search index cache folder."""
     application = create_app({"OLIBRA_DB": catalogue.url, "TESTING": True, "OLIBRA_JOB_PROCESSES": 1,
+                              "OLIBRA_COMPUTE_ON_ADD": False,
                               "OLIBRA_INDEX_CACHE_DIR": str(tmp_path / "index-cache")})
     yield application
     state = application.extensions["olibra"]

@@ -20,8 +20,9 @@ from rdkit import Chem
 from sqlalchemy import func, select
 
 from library import computations
-from library.catalogue import accounts, curation, records
+from library.catalogue import accounts, curation, observations, records
 from library.catalogue.models import AuditEntry, BackgroundJob, Material, PairFlag, User
+from library.search import disagreements
 from webui import SecretKeyMissing, create_app
 from webui.background import mark_abandoned
 
@@ -203,6 +204,50 @@ def test_pair_flags_are_listed_with_the_caution(client, catalogue):
     assert "not a safety or regulatory finding" in page and "IFRA Standards" in page
 
 
+def test_pair_flags_can_be_edited_and_withdrawn_with_history(client, catalogue):
+    r_id, s_id = material_id(catalogue, "(R)-(+)-Limonene"), material_id(catalogue, "(S)-(-)-Limonene")
+    with catalogue.transaction() as session:
+        flag = PairFlag(material_a_id=min(r_id, s_id), material_b_id=max(r_id, s_id),
+                        kind="other", note="first look", created_by="cora")
+        session.add(flag)
+        session.flush()
+        flag_id = flag.id
+    token = sign_in(client, "cora")
+    page = client.get(f"/materials/{r_id}").text
+    assert f'action="/flags/{flag_id}/edit"' in page and f'action="/flags/{flag_id}/withdraw"' in page
+    back = f"/materials/{r_id}"
+    edited = client.post(f"/flags/{flag_id}/edit", data={"csrf_token": token, "kind": "vibration-alike smell-different",
+                                                         "note": "panel says different", "next": back})
+    assert edited.status_code == 303 and edited.headers["Location"] == back
+    refused = client.post(f"/flags/{flag_id}/edit", data={"csrf_token": token, "kind": "smells nice", "next": back},
+                          follow_redirects=True)
+    assert "The flag was not changed" in refused.text and "is not one of" in html.unescape(refused.text)
+    withdrawn = client.post(f"/flags/{flag_id}/withdraw", data={"csrf_token": token, "next": back},
+                            follow_redirects=True)
+    assert "was withdrawn" in withdrawn.text and "No pair flags." in withdrawn.text
+    with catalogue.reading() as session:
+        assert session.get(PairFlag, flag_id) is None
+        trail = session.scalars(select(AuditEntry).where(AuditEntry.entity == "pair_flag",
+                                                         AuditEntry.entity_id == flag_id)
+                                .order_by(AuditEntry.id)).all()
+        assert [e.action for e in trail] == ["update", "withdraw"]
+        assert trail[0].old_value.endswith("other: first look")
+        assert trail[0].new_value.endswith("vibration-alike smell-different: panel says different")
+        assert trail[1].actor == "cora"
+    sign_in(client, "rhea")
+    assert client.post(f"/flags/{flag_id}/withdraw", data={"csrf_token": token}).status_code in (400, 403)
+
+
+def test_the_default_flag_kind_follows_the_direction_and_the_observation():
+    # the kinds' own wording: a pair the shape metric calls alike but that smells different, and so on
+    assert disagreements.default_flag_kind("shape-not-vibration") == "shape-alike smell-different"
+    assert disagreements.default_flag_kind("shape-not-vibration", "shape") == "vibration-unalike smell-alike"
+    assert disagreements.default_flag_kind("vibration-not-shape") == "vibration-alike smell-different"
+    assert disagreements.default_flag_kind("vibration-not-shape", "vibration") == "shape-unalike smell-alike"
+    assert {disagreements.default_flag_kind(d, m) for d in disagreements.DIRECTIONS
+            for m in (None, "shape", "vibration")} <= set(observations.FLAG_KINDS)
+
+
 # --- adding and editing ----------------------------------------------------------------------------
 
 def add_form(token, **values):
@@ -228,14 +273,14 @@ def test_add_material_stores_it_with_audit(client, catalogue):
 
 
 @pytest.mark.parametrize("values, message", [
-    ({"name": ""}, "Give the material a name."),
-    ({"structure": ""}, "Give the structure as SMILES"),
+    ({"name": ""}, "every material needs a name"),
+    ({"structure": ""}, "structure is empty"),
     ({"structure": "C1CC(C"}, "SMILES"),
     ({"cas": "121-33-6"}, "check digit"),
     ({"odors": "vanilla, moonlight"}, "moonlight not in the vocabulary"),
     ({"odors": "vanilla:7"}, "outside 0-1"),
     ({"source": "a friend told me"}, "does not start with one of"),
-    ({"name": "Citral"}, "already used by"),
+    ({"name": "Citral"}, "is already the name of"),
 ])
 def test_add_material_form_validation(client, catalogue, values, message):
     token = sign_in(client, "cora")
@@ -243,6 +288,32 @@ def test_add_material_form_validation(client, catalogue, values, message):
     assert response.status_code == 400
     assert message in response.text and "Traceback" not in response.text
     assert material_count(catalogue) == len(SEED_NAMES)
+
+
+def test_add_material_reports_every_problem_beside_its_field_in_one_pass(client, catalogue):
+    token = sign_in(client, "cora")
+    response = client.post("/materials/new", data=add_form(
+        token, name="", cas="121-33-6", odors="vanilla, moonlight", source="a friend told me"))
+    assert response.status_code == 400
+    page = response.text
+    for message in ("every material needs a name", "has check digit 6", "moonlight not in the vocabulary",
+                    "does not start with one of"):
+        assert page.count(message) == 1, message
+    # each message sits inside its own field's block, not in a banner above the form
+    fields = re.findall(r'<div class="field has-error">(.*?)</div>', page, flags=re.S)
+    assert len(fields) == 4
+    assert any('name="cas"' in block and "has check digit 6" in block for block in fields)
+    assert any('name="odors"' in block and "moonlight" in block for block in fields)
+    assert material_count(catalogue) == len(SEED_NAMES)
+
+
+def test_a_known_structure_is_reported_before_the_other_fields(client, catalogue):
+    token = sign_in(client, "cora")
+    citral = material_id(catalogue, "Citral")
+    response = client.post("/materials/new", data=add_form(token, structure="CC(C)=CCCC(C)=CC=O",
+                                                           name="", cas="121-33-6"))
+    assert response.status_code == 409
+    assert f'href="/materials/{citral}"' in response.text and "has check digit" not in response.text
 
 
 def test_adding_a_known_structure_points_to_the_existing_record(client, catalogue):
@@ -296,7 +367,7 @@ def test_edit_material_audits_every_change(client, catalogue):
     ({"cas": "5392-40-5"}, "already used by"),
     ({"cas": "106-26-4"}, "check digit"),
     ({"odors": "lemon, stardust"}, "stardust not in the vocabulary"),
-    ({"name": ""}, "Give the material a name."),
+    ({"name": ""}, "every material needs a name"),
 ])
 def test_a_refused_edit_changes_nothing(client, catalogue, change, message):
     sign_in(client, "cora")
@@ -476,11 +547,49 @@ def test_a_recompute_job_runs_on_the_dask_cluster_the_server_is_configured_with(
     assert "NPR1" in octanal and "tag-current" in octanal
 
 
-def test_only_one_recompute_at_a_time_and_abandoned_jobs_are_marked(app, client, catalogue):
+def test_an_added_material_gets_its_records_queued_and_shows_the_job(app, client, catalogue):
+    app.config["OLIBRA_COMPUTE_ON_ADD"] = True
+    token = sign_in(client, "cora")
+    response = client.post("/materials/new", data=add_form(token))
+    assert response.status_code == 302
+    vanillin = int(response.headers["Location"].rsplit("/", 1)[1])
+    page = client.get(f"/materials/{vanillin}").text
+    assert 'id="material-job"' in page and f"material #{vanillin}" in page
+    job_id = int(re.search(r'href="/jobs/(\d+)"', page.split('id="material-job"')[1]).group(1))
+    job = wait_for_job(client, job_id)
+    assert job["state"] == "finished" and (job["total"], job["done"], job["failed"]) == (1, 1, 0), job
+    assert job["parameters"]["material_ids"] == [vanillin]
+    page = client.get(f"/materials/{vanillin}").text
+    assert "NPR1" in page and page.count("tag-current") == 2  # shape and vibration records
+    # compute now: every record is current, so the job has nothing to do and says so
+    again = client.post(f"/materials/{vanillin}/compute", data={"csrf_token": token}, follow_redirects=True)
+    assert "computes this material" in again.text and "tag-finished" in again.text
+    assert client.post(f"/materials/{vanillin}/compute", data={}).status_code == 400  # no CSRF token
+    sign_in(client, "rhea")
+    assert "Compute now" not in client.get(f"/materials/{vanillin}").text
+    assert client.post(f"/materials/{vanillin}/compute", data={"csrf_token": token}).status_code in (400, 403)
+
+
+def a_job_seems_to_run(app):
+    """A job row left 'running' (no thread behind it), as a busy server would show; returns the bookkeeping."""
     bookkeeping = app.extensions["olibra"].bookkeeping
     with bookkeeping.begin() as session:
         session.add(BackgroundJob(kind="recompute", description="recompute shape records", state="running",
                                   total=5, done=2, created_by="cora"))
+    return bookkeeping
+
+
+def test_compute_now_waits_behind_a_running_job(app, client, catalogue):
+    a_job_seems_to_run(app)
+    token = sign_in(client, "cora")
+    octanal = material_id(catalogue, "Octanal")
+    client.post(f"/materials/{octanal}/compute", data={"csrf_token": token})
+    page = client.get(f"/materials/{octanal}").text.split('id="material-job"')[1]
+    assert "tag-queued" in page and f"material #{octanal}" in page
+
+
+def test_only_one_recompute_at_a_time_and_abandoned_jobs_are_marked(app, client, catalogue):
+    bookkeeping = a_job_seems_to_run(app)
     token = sign_in(client, "cora")
     response = client.post("/jobs/recompute", data={"csrf_token": token, "kinds": "shape", "engine": "mmff"},
                            follow_redirects=True)
@@ -617,7 +726,11 @@ def test_api_reads_and_writes(client, catalogue):
     again = client.post("/api/materials", headers=headers, json={"structure": COUMARIN, "name": "Coumarin again"})
     assert again.status_code == 409 and again.get_json()["existing"]["id"] == body["id"]
 
-    for payload, message in [({"name": "Vanillin"}, "'structure' is required"),
+    refused = client.post("/api/materials", headers=headers, json={
+        "structure": "C1CC(C", "name": "", "cas": "121-33-6", "odors": ["moonlight"]})
+    assert refused.status_code == 400
+    assert set(refused.get_json()["error"]["fields"]) == {"structure", "name", "cas", "odors"}
+    for payload, message in [({"name": "Vanillin"}, "structure is empty"),
                              ({"structure": VANILLIN, "name": "Vanillin", "colour": "white"}, "unknown field"),
                              ({"structure": "not a molecule", "name": "Vanillin"}, "SMILES")]:
         refused = client.post("/api/materials", headers=headers, json=payload)
@@ -665,3 +778,46 @@ def test_api_bad_paging_arguments(client):
                                ({"q": "x" * 300}, "at most 200")]:
         response = client.get("/api/materials", query_string=arguments)
         assert response.status_code == 400 and message in response.get_json()["error"]["message"], arguments
+
+
+def test_the_npr_triangle_labels_both_axes_and_keeps_its_labels_apart():
+    from webui.charts import npr_triangle_svg
+
+    svg = str(npr_triangle_svg(0.243, 0.841, name="Citral"))
+    labels = dict((text, (float(x), float(y))) for x, y, text in
+                  re.findall(r'<text class="axis-label" x="([\d.]+)" y="([\d.]+)"[^>]*>([^<]+)</text>', svg))
+    assert set(labels) == {"NPR1", "NPR2"}
+    corners = {text: (float(x), float(y)) for x, y, text in
+               re.findall(r'<text class="tick corner" x="([\d.]+)" y="([\d.]+)"[^>]*>([^<]+)</text>', svg)}
+    assert set(corners) == {"rod", "disc", "sphere"}
+    ticks = [(float(x), float(y)) for x, y in re.findall(r'<text class="tick" x="([\d.]+)" y="([\d.]+)"', svg)]
+    # every label anchor is more than a 10 px text line from every other (the disc and NPR1 labels were 10 px apart)
+    anchors = [*labels.values(), *corners.values(), *ticks]
+    for i, (x1, y1) in enumerate(anchors):
+        for x2, y2 in anchors[i + 1:]:
+            assert abs(x1 - x2) >= 20 or abs(y1 - y2) >= 12, ((x1, y1), (x2, y2))
+
+
+def test_the_change_history_filters_by_user_date_and_material(client, catalogue):
+    token = sign_in(client, "cora")
+    assert client.post("/materials/new", data=add_form(token)).status_code == 302
+    neral = material_id(catalogue, "Neral")
+    form = edit_form(client, neral)
+    form.update(family="changed")
+    assert client.post(f"/materials/{neral}/edit", data=form).status_code == 302
+    sign_in(client, "rhea")  # readers see the history too
+    everything = client.get("/history").text
+    assert "Change history" in everything and "<td>cora</td>" in everything
+    # cora's changes: the added material, and on Neral the family with the source of the new value
+    by_cora = client.get("/history", query_string={"user": "cora"}).text
+    assert by_cora.count("<td>cora</td>") == 3 and "changed" in by_cora
+    neral_only = html.unescape(client.get("/history", query_string={"user": "cora", "material": "Neral"}).text)
+    assert neral_only.count("<td>cora</td>") == 2 and f"material #{neral}" in neral_only
+    assert "<td>create</td>" not in neral_only
+    today = time.strftime("%Y-%m-%d", time.gmtime())
+    assert client.get("/history", query_string={"user": "cora", "since": today}).text.count("<td>cora</td>") == 3
+    assert "No changes match." in client.get("/history", query_string={"user": "cora", "until": "2000-01-01"}).text
+    bad = client.get("/history", query_string={"since": "yesterday"})
+    assert bad.status_code == 400 and "YYYY-MM-DD" in bad.text
+    unknown = client.get("/history", query_string={"material": "no such thing"})
+    assert unknown.status_code == 400 and "no material matches" in unknown.text

@@ -305,6 +305,13 @@ def test_curators_flag_a_disagreement_from_the_page(app, curator, reader, catalo
     carvone_r, carvone_s = material_id(catalogue, "(R)-(-)-Carvone"), material_id(catalogue, "(S)-(+)-Carvone")
     page = curator.get("/disagreements").text
     assert 'action="/disagreements/flag"' in page
+    # each row's flag form preselects the kind its direction suggests (mirror pair: vibration-alike)
+    rows = re.findall(r"<td>(shape-not-vibration|vibration-not-shape)</td>(.*?)</form>", page, re.DOTALL)
+    assert {direction for direction, _ in rows} == {"shape-not-vibration", "vibration-not-shape"}
+    for direction, form_html in rows:
+        preselected = re.search(r"<option selected>([^<]+)</option>", form_html).group(1)
+        assert preselected.startswith("shape-alike" if direction == "shape-not-vibration" else "vibration-alike") \
+            or preselected.endswith("smell-alike"), (direction, preselected)
     assert 'action="/disagreements/flag"' not in reader.get("/disagreements").text
     form = {"a": carvone_r, "b": carvone_s, "kind": "vibration-alike smell-different",
             "note": "mirror images smell different (spearmint vs caraway)", "next": "/disagreements?sort=gap"}

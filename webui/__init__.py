@@ -152,6 +152,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         WTF_CSRF_TIME_LIMIT=None,  # the token lives as long as the signed session
         OLIBRA_PAGE_SIZE=50,
         OLIBRA_JOB_PROCESSES=None,  # worker processes for a recompute (default: one per core)
+        OLIBRA_COMPUTE_ON_ADD=True,  # queue shape and vibration records of materials added or imported
         OLIBRA_JOB_CLUSTER=os.environ.get("OLIBRA_CLUSTER") or None,  # a Dask scheduler for recomputes
         OLIBRA_VIBRATION_ENGINE="mmff",  # vibration records the search pages use
         OLIBRA_INDEX_CACHE_DIR=None,  # folder of the on-disk index cache (default: the user cache folder)
@@ -208,6 +209,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         disagreements,
         errors,
         health,
+        history,
         jobs,
         pair_classes,
         scorecard,
@@ -217,7 +219,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     auth.init_app(app)
     errors.init_app(app)
-    for module in (auth, accounts, browse, curation, jobs, substitutes, compare, disagreements, scorecard,
+    for module in (auth, accounts, browse, curation, jobs, history, substitutes, compare, disagreements, scorecard,
                    pair_classes, api, search_api, health):
         app.register_blueprint(module.blueprint)
     return app

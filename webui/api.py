@@ -21,8 +21,8 @@ from library.catalogue.models import BackgroundJob, Material, MaterialOdor
 from library.errors import OlibraError
 from webui import db_session, queries, web_state, write_transaction
 from webui.auth import SignInThrottled, checked_sign_in, end_session, start_session
-from webui.curation import draft_from, run_import
-from webui.jobs import record_counts, start
+from webui.curation import material_input, run_import
+from webui.jobs import queue_new_materials, record_counts, start
 
 blueprint = Blueprint("api", __name__, url_prefix="/api")
 
@@ -151,14 +151,19 @@ def material(material_id: int):
 @blueprint.post("/materials")
 def add_material():
     data = json_body(MATERIAL_FIELDS)
-    for key in ("structure", "name"):
-        if not isinstance(data.get(key), str) or not data[key].strip():
-            raise OlibraError(f"'{key}' is required (a non-empty string)")
-    with write_transaction() as session:
-        outcome = curation.add_material(session, draft_from(data), actor=current_user.username)
-        body = queries.material_json(outcome.material, detail=True)
-    if not outcome.added:
-        return jsonify(error={"status": 409, "message": outcome.message}, existing=body), 409
+    try:
+        with write_transaction() as session:
+            draft, existing = curation.check_new_material(session, material_input(data))
+            if existing is not None:
+                body = queries.material_json(existing, detail=True)
+                message = (f"already present as #{existing.id} {existing.preferred_name} "
+                           f"(InChIKey {existing.inchikey})")
+                return jsonify(error={"status": 409, "message": message}, existing=body), 409
+            outcome = curation.add_material(session, draft, actor=current_user.username)
+            body = queries.material_json(outcome.material, detail=True)
+    except curation.FieldErrors as exc:
+        return jsonify(error={"status": 400, "message": str(exc), "fields": exc.errors}), 400
+    body["compute_job"] = queue_new_materials([body["id"]])
     return jsonify(body), 201
 
 

@@ -50,40 +50,73 @@ def active_job(session: Session) -> BackgroundJob | None:
 
 def start_recompute(catalogue: Catalogue, bookkeeping: sessionmaker[Session], *, kinds: str,
                     engine: str, actor: str, processes: int | None = None,
-                    cluster: str | None = None) -> int:
-    """Start recomputing the missing or stale records of every active material; returns the job id."""
+                    cluster: str | None = None, material_ids: list[int] | None = None,
+                    queue_if_busy: bool = False) -> int:
+    """Start computing missing or stale records; returns the job id.
+
+    Without `material_ids` every active material is considered; with them only
+    those (a material just added or imported, or "compute now" on its page).
+    With `queue_if_busy` a job started while another runs waits as 'queued' and
+    starts when the running one ends; otherwise JobError says to wait."""
     plan = recompute_plan(kinds, engine)
     try:
         stamps = computations.stamps(plan)
     except ImportError as exc:
         raise JobError(f"the {kinds} computation is not available in this installation ({exc}); "
                        "choose another kind or engine") from None
-    materials = jobs.select_materials(catalogue, stamps, which="stale")
     description = (f"recompute {', '.join(plan.kinds)} records"
                    + (f" (vibration engine {plan.vibration_engine})" if "vibration" in plan.kinds else ""))
+    if material_ids is not None:
+        description = (f"compute {', '.join(plan.kinds)} records of "
+                       + (f"material #{material_ids[0]}" if len(material_ids) == 1
+                          else f"{len(material_ids)} materials"))
+    materials = _materials_for(catalogue, stamps, material_ids)
     with _start_lock, bookkeeping.begin() as session:
         running = active_job(session)
-        if running is not None:
+        if running is not None and not queue_if_busy:
             raise JobError(f"job #{running.id} ({running.description}) is still running; "
                            "wait for it to finish, then start another")
+        parameters = {"kinds": list(plan.kinds), "vibration_engine": plan.vibration_engine}
+        if material_ids is not None:
+            parameters["material_ids"] = sorted(set(material_ids))
         job = BackgroundJob(kind="recompute", description=description, state="queued",
                             total=len(materials), created_by=actor,
-                            parameters_json=json.dumps({"kinds": list(plan.kinds),
-                                                        "vibration_engine": plan.vibration_engine}))
+                            parameters_json=json.dumps(parameters))
         if not materials:
             job.state, job.started_at, job.finished_at = "finished", utc_now(), utc_now()
             job.message = "nothing to compute: every record is current"
         session.add(job)
         session.flush()
         job_id = job.id
-        if materials:
-            # Started inside the lock so that a second request sees this job as active.
-            thread = threading.Thread(target=_run, name=f"olibra-job-{job_id}", daemon=True,
-                                      args=(catalogue, bookkeeping, job_id, plan, stamps, materials, processes,
-                                            cluster))
-    if materials:
-        thread.start()
+        if running is not None or not materials:
+            return job_id  # a queued job is started by the running job's thread when that one ends
+        # Started inside the lock so that a second request sees this job as active.
+        thread = threading.Thread(target=_run, name=f"olibra-job-{job_id}", daemon=True,
+                                  args=(catalogue, bookkeeping, job_id, processes, cluster))
+    thread.start()
     return job_id
+
+
+def _materials_for(catalogue: Catalogue, stamps, material_ids: list[int] | None) -> list[tuple[int, str, str]]:
+    materials = jobs.select_materials(catalogue, stamps, which="stale")
+    if material_ids is not None:
+        wanted = set(material_ids)
+        materials = [m for m in materials if m[0] in wanted]
+    return materials
+
+
+def _start_next(catalogue, bookkeeping, processes, cluster) -> None:
+    """Start the oldest queued job (one that waited for the job that just ended)."""
+    with _start_lock, bookkeeping.begin() as session:
+        if session.scalar(select(BackgroundJob.id).where(BackgroundJob.state == "running")) is not None:
+            return
+        queued = session.scalar(select(BackgroundJob.id).where(BackgroundJob.state == "queued")
+                                .order_by(BackgroundJob.id))
+        if queued is None:
+            return
+        session.execute(update(BackgroundJob).where(BackgroundJob.id == queued).values(state="running"))
+    threading.Thread(target=_run, name=f"olibra-job-{queued}", daemon=True,
+                     args=(catalogue, bookkeeping, queued, processes, cluster)).start()
 
 
 def _update(bookkeeping: sessionmaker[Session], job_id: int, **values) -> None:
@@ -91,7 +124,14 @@ def _update(bookkeeping: sessionmaker[Session], job_id: int, **values) -> None:
         session.execute(update(BackgroundJob).where(BackgroundJob.id == job_id).values(**values))
 
 
-def _run(catalogue, bookkeeping, job_id, plan, stamps, materials, processes, cluster) -> None:
+def _run(catalogue, bookkeeping, job_id, processes, cluster) -> None:
+    try:
+        _compute(catalogue, bookkeeping, job_id, processes, cluster)
+    finally:
+        _start_next(catalogue, bookkeeping, processes, cluster)
+
+
+def _compute(catalogue, bookkeeping, job_id, processes, cluster) -> None:
     processed = 0
 
     def progress(step: int) -> None:
@@ -100,7 +140,16 @@ def _run(catalogue, bookkeeping, job_id, plan, stamps, materials, processes, clu
         _update(bookkeeping, job_id, done=processed)
 
     try:
-        _update(bookkeeping, job_id, state="running", started_at=utc_now())
+        with bookkeeping() as session:
+            parameters = json.loads(session.get(BackgroundJob, job_id).parameters_json or "{}")
+        plan = computations.Plan(kinds=tuple(parameters["kinds"]), vibration_engine=parameters["vibration_engine"])
+        stamps = computations.stamps(plan)
+        materials = _materials_for(catalogue, stamps, parameters.get("material_ids"))
+        if not materials:
+            _update(bookkeeping, job_id, state="finished", started_at=utc_now(), finished_at=utc_now(),
+                    total=0, message="nothing to compute: every record is current")
+            return
+        _update(bookkeeping, job_id, state="running", started_at=utc_now(), total=len(materials))
         report = jobs.run(catalogue, stamps, computations.worker(plan), materials,
                           processes=processes, progress=progress, cluster=cluster,
                           keep_current=True)

@@ -186,26 +186,44 @@ def preview_svg(points: str | None, reference: str | None = None, *, label: str 
     return Markup("".join(parts))
 
 
-def npr_triangle_svg(npr1: float, npr2: float, *, name: str = "", size: int = 220) -> Markup:
-    """The normalized PMI ratio triangle (rod, disc, sphere corners) with the material's position."""
-    pad = 30
-    span = size - 2 * pad
+def npr_triangle_svg(npr1: float, npr2: float, *, name: str = "", size: int = 240) -> Markup:
+    """The normalized PMI ratio triangle (rod, disc, sphere corners) with the material's position.
+
+    NPR1 runs 0-1 on the horizontal axis and NPR2 0.5-1 on the vertical axis, each with its
+    ticks and label; the corner names sit outside the triangle, clear of the ticks."""
+    left, right, top, bottom = 62, 18, 26, 46
+    width, height = size + 16, size
+    span_x, span_y = width - left - right, height - top - bottom
 
     def point(x, y):  # NPR1 on the horizontal axis 0-1, NPR2 on the vertical axis 0.5-1
-        return pad + x * span, pad + (1.0 - y) / 0.5 * span
+        return left + x * span_x, top + (1.0 - y) / 0.5 * span_y
 
     rod, disc, sphere = point(0, 1), point(0.5, 0.5), point(1, 1)
     px, py = point(min(max(npr1, 0.0), 1.0), min(max(npr2, 0.5), 1.0))
     title = escape(f"{name}: NPR1 {npr1:.3f}, NPR2 {npr2:.3f}")
-    return Markup(
-        f'<svg class="chart npr" viewBox="0 0 {size} {size}" width="{size}" height="{size}" role="img" '
-        f'aria-label="{title}"><polygon class="triangle" points="{_points(*zip(rod, disc, sphere))}"/>'
-        f'<text class="tick" x="{rod[0]}" y="{rod[1] - 8}" text-anchor="start">rod</text>'
-        f'<text class="tick" x="{sphere[0]}" y="{sphere[1] - 8}" text-anchor="end">sphere</text>'
-        f'<text class="tick" x="{disc[0]}" y="{disc[1] + 16}" text-anchor="middle">disc</text>'
-        f'<text class="axis-label" x="{size / 2}" y="{size - 4}" text-anchor="middle">NPR1</text>'
-        f'<g class="band"><title>{title}</title><circle class="npr-point" cx="{px:.1f}" cy="{py:.1f}" r="6"/></g>'
-        "</svg>")
+    axis_y, axis_x = top + span_y + 8, left - 8
+    parts = [f'<svg class="chart npr" viewBox="0 0 {width} {height}" width="{width}" height="{height}" role="img" '
+             f'aria-label="{title}"><polygon class="triangle" points="{_points(*zip(rod, disc, sphere))}"/>',
+             f'<line class="axis" x1="{left}" y1="{axis_y}" x2="{left + span_x}" y2="{axis_y}"/>',
+             f'<line class="axis" x1="{axis_x}" y1="{top}" x2="{axis_x}" y2="{top + span_y}"/>']
+    for value in (0.0, 0.5, 1.0):
+        x, _ = point(value, 0.5)
+        parts.append(f'<line class="axis" x1="{x:.1f}" y1="{axis_y}" x2="{x:.1f}" y2="{axis_y + 4}"/>'
+                     f'<text class="tick" x="{x:.1f}" y="{axis_y + 15}" text-anchor="middle">{value:g}</text>')
+    for value in (0.5, 0.75, 1.0):
+        _, y = point(0.0, value)
+        parts.append(f'<line class="axis" x1="{axis_x - 4}" y1="{y:.1f}" x2="{axis_x}" y2="{y:.1f}"/>'
+                     f'<text class="tick" x="{axis_x - 6}" y="{y + 4:.1f}" text-anchor="end">{value:g}</text>')
+    parts += [
+        f'<text class="tick corner" x="{rod[0]}" y="{rod[1] - 8}" text-anchor="start">rod</text>',
+        f'<text class="tick corner" x="{sphere[0]}" y="{sphere[1] - 8}" text-anchor="end">sphere</text>',
+        f'<text class="tick corner" x="{disc[0] + 10}" y="{disc[1] - 2}" text-anchor="start">disc</text>',
+        f'<text class="axis-label" x="{left + span_x / 2}" y="{height - 6}" text-anchor="middle">NPR1</text>',
+        f'<text class="axis-label" x="12" y="{top + span_y / 2}" text-anchor="middle" '
+        f'transform="rotate(-90 12 {top + span_y / 2})">NPR2</text>',
+        f'<g class="band"><title>{title}</title><circle class="npr-point" cx="{px:.1f}" cy="{py:.1f}" r="6"/></g>',
+        "</svg>"]
+    return Markup("".join(parts))
 
 
 def scorecard_svg(scores, *, width: int = 760) -> Markup:

@@ -11,10 +11,11 @@ from sqlalchemy.orm import selectinload
 from werkzeug.utils import secure_filename
 
 from library.catalogue import curation, transfer
+from library.catalogue.curation import FieldErrors
 from library.catalogue.edits import MaterialChanges, apply_changes, odor_text
 from library.catalogue.models import Material, MaterialOdor
 from library.errors import OlibraError
-from webui import begin_write, db_session, queries, write_transaction
+from webui import begin_write, db_session, jobs, queries, write_transaction
 from webui.errors import user_message
 from webui.forms import (
     EditMaterialForm,
@@ -40,22 +41,37 @@ def curators_only(view):
     return guarded
 
 
-def draft_from(values: dict):
-    """A checked material draft from the add form's or the API's values (raises OlibraError)."""
-    source = (values.get("source") or "").strip() or "from memory"
+def material_input(values: dict) -> curation.MaterialInput:
+    """The add form's or the API's values as typed (checked by curation.check_new_material)."""
     odors = values.get("odors") or ""
     if isinstance(odors, list):
         odors = "|".join(str(o) for o in odors)
-    odors = odors.replace(",", "|")
     synonyms = values.get("synonyms") or []
     if isinstance(synonyms, str):
         synonyms = split_lines(synonyms)
-    cas = (values.get("cas") or "").strip()
-    return curation.draft_material(
-        values.get("structure") or "", name=values.get("name") or "", synonyms=synonyms, cas=cas,
-        family=values.get("family"), notes=values.get("notes"), odors=odors,
-        sources={"structure": source, "preferred_name": source, "cas_rn": source if cas else None,
-                 "odor": source if odors.strip() else None})
+    return curation.MaterialInput(
+        structure=values.get("structure") or "", name=values.get("name") or "", synonyms=list(synonyms),
+        cas=values.get("cas") or "", family=values.get("family") or "", notes=values.get("notes") or "",
+        odors=odors, source=values.get("source") or "")
+
+
+def show_field_errors(form, exc: FieldErrors, fields: dict[str, str] | None = None) -> None:
+    """Put each of the core's field errors beside its form field (the rest above the form)."""
+    for key, messages in exc.errors.items():
+        target = getattr(form, (fields or {}).get(key, key), None)
+        if target is None or not hasattr(target, "errors"):
+            form.form_errors.extend(messages)
+        else:
+            target.errors = [*target.errors, *messages]
+
+
+def form_checked(form) -> bool:
+    """True unless the CSRF token is missing or stale; the form's length limits keep their messages.
+
+    The form does not stop at its own field errors: the core checks every field
+    again, so all problems are shown together in one pass."""
+    form.validate()
+    return not (getattr(form, "csrf_token", None) is not None and form.csrf_token.errors)
 
 
 @blueprint.route("/materials/new", methods=["GET", "POST"])
@@ -66,16 +82,20 @@ def add_material():
     status = 200
     if request.method == "POST":
         status = 400
-        if form.validate():
+        if form_checked(form):
             try:
                 with write_transaction() as session:
-                    draft = draft_from(form.data)
-                    outcome = curation.add_material(session, draft, actor=current_user.username)
-                if outcome.added:
+                    draft, existing = curation.check_new_material(session, material_input(form.data))
+                    outcome = None if existing else curation.add_material(
+                        session, draft, actor=current_user.username)
+                if outcome is not None and outcome.added:
                     flash(f"Added #{outcome.material.id} {outcome.material.preferred_name}.", "success")
+                    jobs.queue_new_materials([outcome.material.id])
                     return redirect(url_for("browse.material", material_id=outcome.material.id))
-                existing = outcome.material
+                existing = existing or outcome.material
                 status = 409
+            except FieldErrors as exc:
+                show_field_errors(form, exc)
             except OlibraError as exc:
                 form.form_errors.append(user_message(exc))
     return render_template("curation/add.html", form=form, existing=existing), status
@@ -116,7 +136,7 @@ def edit_material(material_id: int):
         form.restricted.data = material.restricted
         form.loaded_at.data = _stamp(material)
         return render_template("curation/edit.html", form=form, material=material)
-    if form.validate():
+    if form_checked(form):
         changes = MaterialChanges(
             name=form.name.data, synonyms=split_lines(form.synonyms.data), cas=form.cas.data or "",
             family=form.family.data or "", notes=form.notes.data or "", odors=form.odors.data or "",
@@ -130,6 +150,8 @@ def edit_material(material_id: int):
                 if material is None or form.loaded_at.data != _stamp(material):
                     raise StaleEdit()
                 changed = apply_changes(session, material, changes, actor=current_user.username)
+        except FieldErrors as exc:
+            show_field_errors(form, exc)
         except OlibraError as exc:
             form.form_errors.append(user_message(exc))
         else:
@@ -142,7 +164,9 @@ def edit_material(material_id: int):
 
 def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source: str | None,
                actor: str) -> transfer.ImportReport:
-    """Import an uploaded file in one transaction; stored only if no row was rejected or `keep_good`."""
+    """Import an uploaded file in one transaction; stored only if no row was rejected or `keep_good`.
+
+    The added materials' shape and vibration records are then queued as one background job."""
     suffix = Path(secure_filename(filename or "")).suffix.lower()
     if suffix not in IMPORT_SUFFIXES:
         raise transfer.ImportFileError(
@@ -160,6 +184,9 @@ def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source:
     except BaseException:
         session.rollback()
         raise
+    if report.committed:
+        jobs.queue_new_materials([r.material_id for r in report.rows
+                                  if r.status == "added" and r.material_id is not None])
     return report
 
 

@@ -10,6 +10,7 @@ from flask_login import current_user
 
 from library.catalogue import curation, observations
 from library.errors import OlibraError
+from library.search import disagreements
 from library.search.disagreements import DIRECTIONS, sides_with_tally, tally_lines
 from webui import explore, write_transaction
 from webui.errors import user_message
@@ -52,7 +53,8 @@ def index():
     return render_template(
         "disagreements/index.html", asked=asked, rows=rows, label=label, used=used, error=error, total=total, page=page,
         pages=pages, sort=sort, order=order, columns=COLUMNS, directions=DIRECTIONS, sources=sources,
-        flag_kinds=observations.FLAG_KINDS, tally=tally, link=_link, here=request.full_path.rstrip("?")), 400 if error else 200
+        flag_kinds=observations.FLAG_KINDS, tally=tally, default_flag_kind=disagreements.default_flag_kind, link=_link,
+        here=request.full_path.rstrip("?")), 400 if error else 200
 
 
 def _link(endpoint: str = "disagreements.index", **changes) -> str:
@@ -97,12 +99,43 @@ def store_flag(key_a: str, key_b: str, kind: str, note: str | None) -> dict:
                 "created_by": flag.created_by}
 
 
-@blueprint.post("/disagreements/flag")
-def flag():
+def _back(allowed: tuple[str, ...] = ("/disagreements",)) -> str:
+    """The page the form came from ('next'), if it is one of ours; else the disagreements page."""
     target = request.form.get("next") or ""
     parts = urlsplit(target)
-    if parts.scheme or parts.netloc or not parts.path.startswith("/disagreements"):
-        target = url_for("disagreements.index")
+    if parts.scheme or parts.netloc or not parts.path.startswith(allowed):
+        return url_for("disagreements.index")
+    return target
+
+
+@blueprint.post("/flags/<int:flag_id>/edit")
+def edit_flag(flag_id: int):
+    """Change a flag's kind or note (curators; audited)."""
+    try:
+        with write_transaction() as session:
+            flag = observations.edit_flag(session, flag_id, kind=request.form.get("kind", ""),
+                                          note=request.form.get("note", ""), actor=current_user.username)
+            flash(f"Flag #{flag.id} is now: {flag.kind}.", "success")
+    except OlibraError as exc:
+        flash(f"The flag was not changed: {user_message(exc)}", "error")
+    return redirect(_back(("/disagreements", "/materials/")), code=303)
+
+
+@blueprint.post("/flags/<int:flag_id>/withdraw")
+def withdraw_flag(flag_id: int):
+    """Withdraw a flag (curators); the history keeps what it said."""
+    try:
+        with write_transaction() as session:
+            observations.withdraw_flag(session, flag_id, actor=current_user.username)
+        flash(f"Flag #{flag_id} was withdrawn.", "success")
+    except OlibraError as exc:
+        flash(f"The flag was not withdrawn: {user_message(exc)}", "error")
+    return redirect(_back(("/disagreements", "/materials/")), code=303)
+
+
+@blueprint.post("/disagreements/flag")
+def flag():
+    target = _back()
     try:
         flag = store_flag(request.form.get("a", "").strip(), request.form.get("b", "").strip(),
                           request.form.get("kind", ""), request.form.get("note", ""))

@@ -1,4 +1,7 @@
-"""The curation forms (Flask-WTF: each carries its CSRF token). Chemistry checks happen in the core."""
+"""The curation forms (Flask-WTF: each carries its CSRF token).
+
+Field values are checked in the core (library.catalogue), which reports every problem at once;
+the forms keep only length limits and the CSRF token."""
 
 from __future__ import annotations
 
@@ -21,11 +24,9 @@ def split_lines(text: str | None) -> list[str]:
 
 class MaterialForm(FlaskForm):
     structure = TextAreaField(
-        "Structure", validators=[DataRequired(message="Give the structure as SMILES, InChI or a molfile."),
-                                 Length(max=100_000)],
+        "Structure", validators=[Length(max=100_000)],
         description="SMILES, InChI or a molfile block; stereochemistry and isotopes are kept.")
-    name = StringField("Preferred name", validators=[DataRequired(message="Give the material a name."),
-                                                     Length(max=200)])
+    name = StringField("Preferred name", validators=[Length(max=200)])
     synonyms = TextAreaField("Synonyms", validators=[Optional(), Length(max=10_000)],
                              description="One per line.")
     cas = StringField("CAS RN", validators=[Optional(), Length(max=20)],
@@ -36,13 +37,12 @@ class MaterialForm(FlaskForm):
                                     "with a strength from 0 to 1, e.g. citrus:0.8, green.")
     notes = TextAreaField("Notes", validators=[Optional(), Length(max=10_000)])
     source = StringField("Source of these values", default="from memory",
-                         validators=[DataRequired(message="Say where the values come from."), Length(max=500)],
+                         validators=[Optional(), Length(max=500)],
                          description=PROVENANCE_HELP)
 
 
 class EditMaterialForm(FlaskForm):
-    name = StringField("Preferred name", validators=[DataRequired(message="Give the material a name."),
-                                                     Length(max=200)])
+    name = StringField("Preferred name", validators=[Length(max=200)])
     synonyms = TextAreaField("Synonyms", validators=[Optional(), Length(max=10_000)],
                              description="One per line.")
     cas = StringField("CAS RN", validators=[Optional(), Length(max=20)])

@@ -7,7 +7,7 @@ from flask_login import current_user
 from sqlalchemy import select
 
 from library import computations
-from library.catalogue.models import BackgroundJob
+from library.catalogue.models import BackgroundJob, Material
 from library.catalogue.records import record_state
 from library.errors import OlibraError
 from webui import background, db_session, queries, web_state
@@ -27,12 +27,41 @@ def record_counts() -> list[dict]:
     return rows
 
 
-def start(kinds: str, engine: str) -> int:
+def start(kinds: str, engine: str, *, material_ids: list[int] | None = None) -> int:
+    """Start a recompute; for `material_ids` (new or chosen materials) it waits behind a running job."""
     state = web_state()
     return background.start_recompute(state.catalogue, state.bookkeeping, kinds=kinds, engine=engine,
                                       actor=current_user.username,
                                       processes=current_app.config.get("OLIBRA_JOB_PROCESSES"),
-                                      cluster=current_app.config.get("OLIBRA_JOB_CLUSTER"))
+                                      cluster=current_app.config.get("OLIBRA_JOB_CLUSTER"),
+                                      material_ids=material_ids, queue_if_busy=material_ids is not None)
+
+
+def queue_new_materials(material_ids: list[int]) -> int | None:
+    """Queue the shape and vibration records of materials just added or imported (unless the app is
+    configured not to, OLIBRA_COMPUTE_ON_ADD=False); returns the job id, or None with a notice."""
+    if not material_ids or not current_app.config.get("OLIBRA_COMPUTE_ON_ADD", True):
+        return None
+    try:
+        return start("all", computations.Plan().vibration_engine, material_ids=material_ids)
+    except OlibraError as exc:
+        flash(f"The records were not queued: {exc}; start them with \"Compute now\" or on the jobs page.",
+              "error")
+        return None
+
+
+@blueprint.post("/materials/<int:material_id>/compute")
+def compute_material(material_id: int):
+    """Compute one material's missing or stale records now (curators; the write guard refuses readers)."""
+    if db_session().get(Material, material_id) is None:
+        abort(404, description=f"There is no material #{material_id} to compute.")
+    try:
+        job_id = start("all", computations.Plan().vibration_engine, material_ids=[material_id])
+    except OlibraError as exc:
+        flash(f"The computation was not started: {exc}", "error")
+    else:
+        flash(f"Job #{job_id} computes this material's records.", "success")
+    return redirect(url_for("browse.material", material_id=material_id))
 
 
 @blueprint.get("/jobs")

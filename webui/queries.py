@@ -197,6 +197,16 @@ def material_json(material: Material, *, detail: bool = False) -> dict:
     return data
 
 
+def latest_job_for(session: Session, material_id: int, *, look_back: int = 50) -> BackgroundJob | None:
+    """The most recent of the last `look_back` jobs that computed this material alone or among others
+    (a job without a material list covers the whole catalogue)."""
+    for job in session.scalars(select(BackgroundJob).order_by(BackgroundJob.id.desc()).limit(look_back)):
+        wanted = json.loads(job.parameters_json or "{}").get("material_ids")
+        if wanted is None or material_id in wanted:
+            return job
+    return None
+
+
 def job_json(job: BackgroundJob) -> dict:
     return {
         "id": job.id, "kind": job.kind, "description": job.description, "state": job.state,

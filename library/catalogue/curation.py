@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import csv
 import difflib
+import datetime as dt
 import getpass
 import os
 import re
@@ -42,6 +43,41 @@ class CurationError(OlibraError, ValueError):
 
 
 ACTOR_VARIABLE = "OLIBRA_ACTOR"
+class FieldErrors(CurationError):
+    """Every problem found in one form's values, by field name, so a person fixes them all in one pass.
+
+    `errors` maps the field names the caller used ('structure', 'name', 'cas', ...)
+    to messages; the text of the exception lists them all."""
+
+    def __init__(self, errors: dict[str, list[str]]):
+        self.errors = {key: list(messages) for key, messages in errors.items() if messages}
+        super().__init__("; ".join(f"{key}: {message}" for key, messages in self.errors.items()
+                                   for message in messages))
+
+
+class FieldChecker:
+    """Runs one check per field, keeps every OlibraError message under its field, raises them together."""
+
+    def __init__(self):
+        self.errors: dict[str, list[str]] = {}
+
+    def check(self, key: str, check, *args, **kwargs):
+        """The value `check(*args, **kwargs)` returns, or None after recording its error under `key`."""
+        try:
+            return check(*args, **kwargs)
+        except OlibraError as exc:
+            self.add(key, str(exc))
+            return None
+
+    def add(self, key: str, message: str) -> None:
+        self.errors.setdefault(key, []).append(message)
+
+    def ok(self, *keys: str) -> bool:
+        return not any(key in self.errors for key in keys)
+
+    def raise_any(self) -> None:
+        if self.errors:
+            raise FieldErrors(self.errors)
 
 
 def current_actor() -> str:
@@ -297,6 +333,73 @@ def draft_material(structure_text: str, *, name: str, synonyms: list[str] | None
 
 
 @dataclass(frozen=True)
+class MaterialInput:
+    """A new material's values as a person typed them in a form or sent them to the API."""
+
+    structure: str = ""
+    name: str = ""
+    synonyms: list[str] = field(default_factory=list)
+    cas: str = ""
+    family: str = ""
+    notes: str = ""
+    odors: str = ""  # 'citrus:0.8|green' or with commas
+    source: str = ""  # provenance of every value given; empty means 'from memory'
+
+
+def check_new_material(session: Session, values: MaterialInput) -> tuple[MaterialDraft | None, Material | None]:
+    """Check every field of a new material in one pass: (draft, None), or (None, existing material).
+
+    The structure is read first and looked up by InChIKey: a structure already in
+    the catalogue is reported before anything else (there is nothing to add).
+    Otherwise every field is checked, including clashes with other materials'
+    names, synonyms and CAS RNs and the odor vocabulary, and FieldErrors lists
+    every problem under the field keys of MaterialInput ('structure', 'name', ...).
+    """
+    checker = FieldChecker()
+    structure = checker.check("structure", standardize, values.structure or "")
+    if structure is not None:
+        existing = find_by_inchikey(session, structure.inchikey)
+        if existing is not None:
+            return None, existing
+    name = checker.check("name", _clean_name, values.name, "name")
+    synonyms: list[str] = []
+    for synonym in values.synonyms:
+        synonym = checker.check("synonyms", _clean_name, synonym, "synonym")
+        if synonym and synonym != name and synonym not in synonyms:
+            synonyms.append(synonym)
+    cas = checker.check("cas", check_cas, values.cas) if (values.cas or "").strip() else None
+    family = checker.check("family", clean_family, values.family)
+    notes = checker.check("notes", clean_notes, values.notes)
+    odors = checker.check("odors", parse_odor_list, (values.odors or "").replace(",", "|")) or []
+    source = checker.check("source", Source.parse, values.source, default="from memory")
+    if name and checker.ok("name"):
+        message = name_clash(session, [name])
+        if message:
+            checker.add("name", message)
+    if synonyms:
+        message = name_clash(session, synonyms)
+        if message:
+            checker.add("synonyms", message)
+    if cas:
+        clash = session.scalar(select(Material).where(Material.cas_rn == cas))
+        if clash is not None:
+            checker.add("cas", f"CAS RN {cas} is already used by #{clash.id} {clash.preferred_name} "
+                               "with a different structure; check the number or the structure")
+    terms = vocabulary(session)
+    unknown = [o.term for o in odors if o.term not in terms]
+    if unknown:
+        checker.add("odors", f"odor descriptor(s) {', '.join(unknown)} not in the vocabulary; use vocabulary "
+                             "terms or add these to the vocabulary first")
+    checker.raise_any()
+    draft = MaterialDraft(structure=structure, preferred_name=name, synonyms=synonyms, cas_rn=cas,
+                          olfactive_family=family, notes=notes, odors=odors, odor_source=source)
+    draft.sources = {"structure": source, "preferred_name": source}
+    if cas:
+        draft.sources["cas_rn"] = source
+    return draft, None
+
+
+@dataclass(frozen=True)
 class AddOutcome:
     material: Material
     added: bool  # False when the structure was already in the catalogue
@@ -414,6 +517,55 @@ def audit(session: Session, *, actor: str, action: str, material: Material, fiel
     session.add(AuditEntry(actor=actor, action=action, entity="material", entity_id=material.id,
                            field=field_name, old_value=None if old is None else str(old),
                            new_value=None if new is None else str(new)))
+
+
+@dataclass(frozen=True)
+class HistoryPage:
+    entries: list[AuditEntry]
+    total: int
+    page: int
+    per_page: int
+
+    @property
+    def pages(self) -> int:
+        return max(1, -(-self.total // self.per_page))
+
+
+def _day(text: str | None, what: str) -> dt.date | None:
+    text = (text or "").strip()
+    if not text:
+        return None
+    try:
+        return dt.date.fromisoformat(text)
+    except ValueError:
+        raise CurationError(f"{what} date {text[:20]!r} is not a date of the form YYYY-MM-DD (e.g. 2026-03-01)") from None
+
+
+def change_history(session: Session, *, actor: str | None = None, since: str | None = None,
+                   until: str | None = None, material: str | None = None, page: int = 1,
+                   per_page: int = 100) -> HistoryPage:
+    """The catalogue-wide audit trail, newest first, filtered by who, from/until which day (UTC,
+    inclusive, YYYY-MM-DD) and which material (any key find_material accepts; its own changes)."""
+    conditions = []
+    if (actor or "").strip():
+        conditions.append(func.lower(AuditEntry.actor) == actor.strip().lower())
+    first, last = _day(since, "from"), _day(until, "until")
+    if first and last and first > last:
+        raise CurationError(f"the from date {first} is after the until date {last}; swap them")
+    if first:
+        conditions.append(AuditEntry.at >= dt.datetime.combine(first, dt.time(), dt.timezone.utc))
+    if last:
+        conditions.append(AuditEntry.at < dt.datetime.combine(last + dt.timedelta(days=1), dt.time(),
+                                                              dt.timezone.utc))
+    if (material or "").strip():
+        found = find_material(session, material)
+        conditions += [AuditEntry.entity == "material", AuditEntry.entity_id == found.id]
+    if page < 1 or not 1 <= per_page <= 500:
+        raise CurationError("page must be 1 or more and per_page from 1 to 500")
+    total = session.scalar(select(func.count()).select_from(AuditEntry).where(*conditions)) or 0
+    entries = list(session.scalars(select(AuditEntry).where(*conditions).order_by(AuditEntry.id.desc())
+                                   .offset((page - 1) * per_page).limit(per_page)))
+    return HistoryPage(entries, total, page, per_page)
 
 
 def set_status(session: Session, material: Material, status: str, *, actor: str | None = None) -> None:

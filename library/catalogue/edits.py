@@ -14,8 +14,8 @@ from sqlalchemy.orm import Session
 
 from library.catalogue import curation
 from library.catalogue.curation import CurationError, Source, parse_odor_list
-from library.catalogue.models import Material, MaterialOdor, Provenance, Synonym, utc_now
-from library.structures import StructureError, check_cas
+from library.catalogue.models import MATERIAL_STATUSES, Material, MaterialOdor, Provenance, Synonym, utc_now
+from library.structures import check_cas
 
 
 @dataclass
@@ -68,44 +68,51 @@ def _set_provenance(session: Session, material: Material, field_name: str, sourc
 def apply_changes(session: Session, material: Material, changes: MaterialChanges, *, actor: str) -> list[str]:
     """Check every value, then change what differs; returns the names of the changed fields.
 
-    Raises CurationError (or StructureError for a CAS RN) naming the first
-    problem; the caller's transaction is then rolled back, so nothing changes.
+    Every field is checked before anything changes; FieldErrors lists every
+    problem under the MaterialChanges field names ('name', 'cas', 'odors', ...).
+    The caller's transaction is then rolled back, so nothing changes.
     """
-    name = _check_name(changes.name, "name")
+    checker = curation.FieldChecker()
+    name = checker.check("name", _check_name, changes.name, "name")
     synonyms: list[str] = []
     for synonym in changes.synonyms:
         if synonym.strip():
-            synonym = _check_name(synonym, "synonym")
-            if synonym != name and synonym not in synonyms:
+            synonym = checker.check("synonyms", _check_name, synonym, "synonym")
+            if synonym and synonym != name and synonym not in synonyms:
                 synonyms.append(synonym)
-    try:
-        cas = check_cas(changes.cas) if (changes.cas or "").strip() else None
-    except StructureError as exc:
-        raise CurationError(str(exc)) from None
-    family = curation.clean_family(changes.family)
-    notes = curation.clean_notes(changes.notes)
-    odors = parse_odor_list((changes.odors or "").replace(",", "|"))
-    source = Source.parse(changes.source, default="from memory")
-    odor_source = Source.parse(changes.odor_source, default="from memory")
+    cas = checker.check("cas", check_cas, changes.cas) if (changes.cas or "").strip() else None
+    family = checker.check("family", curation.clean_family, changes.family)
+    notes = checker.check("notes", curation.clean_notes, changes.notes)
+    odors = checker.check("odors", parse_odor_list, (changes.odors or "").replace(",", "|")) or []
+    source = checker.check("source", Source.parse, changes.source, default="from memory")
+    odor_source = checker.check("odor_source", Source.parse, changes.odor_source, default="from memory")
+    if changes.status not in MATERIAL_STATUSES:
+        checker.add("status", f"status {changes.status!r} is not one of {', '.join(MATERIAL_STATUSES)}")
 
-    if name != material.preferred_name:
+    if name and name != material.preferred_name:
         clash = session.scalar(select(Material).where(
             func.lower(Material.preferred_name) == name.lower(), Material.id != material.id))
         if clash is not None:
-            raise CurationError(f"the name {name!r} is already used by #{clash.id}; choose another name")
-    message = curation.name_clash(session, [name, *synonyms], exclude_id=material.id)
-    if message:
-        raise CurationError(message)
+            checker.add("name", f"the name {name!r} is already used by #{clash.id}; choose another name")
+    if name and checker.ok("name"):
+        message = curation.name_clash(session, [name], exclude_id=material.id)
+        if message:
+            checker.add("name", message)
+    if synonyms:
+        message = curation.name_clash(session, synonyms, exclude_id=material.id)
+        if message:
+            checker.add("synonyms", message)
     if cas and cas != material.cas_rn:
         clash = session.scalar(select(Material).where(Material.cas_rn == cas, Material.id != material.id))
         if clash is not None:
-            raise CurationError(f"CAS RN {cas} is already used by #{clash.id} {clash.preferred_name}; "
-                                "check the number")
+            checker.add("cas", f"CAS RN {cas} is already used by #{clash.id} {clash.preferred_name}; "
+                               "check the number")
     terms = curation.vocabulary(session)
     unknown = [o.term for o in odors if o.term not in terms]
     if unknown:
-        raise CurationError(f"odor descriptor(s) {', '.join(unknown)} not in the vocabulary; "
-                            "add them on the vocabulary page first")
+        checker.add("odors", f"odor descriptor(s) {', '.join(unknown)} not in the vocabulary; "
+                             "add them on the vocabulary page first")
+    checker.raise_any()
 
     changed: list[str] = []
 

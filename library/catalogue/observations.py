@@ -211,5 +211,48 @@ def flag_pair(session: Session, material_a: Material, material_b: Material, *, k
     return flag
 
 
+def _flag_text(flag: PairFlag) -> str:
+    return f"#{flag.material_a_id} #{flag.material_b_id} {flag.kind}: {flag.note or ''}"
+
+
+def _stored_flag(session: Session, flag_id: int) -> PairFlag:
+    flag = session.get(PairFlag, flag_id, with_for_update=True)
+    if flag is None:
+        raise CurationError(f"there is no pair flag #{flag_id} (it may have been withdrawn); reload the page")
+    return flag
+
+
+def edit_flag(session: Session, flag_id: int, *, kind: str, note: str | None = None,
+              actor: str | None = None) -> PairFlag:
+    """Change a flag's kind and note; the old and new values go to the audit trail."""
+    flag = _stored_flag(session, flag_id)
+    kind = (kind or "").strip()
+    if kind not in FLAG_KINDS:
+        raise CurationError(f"flag kind {kind!r} is not one of: {'; '.join(FLAG_KINDS)}")
+    note = (note or "").strip() or None
+    if kind != flag.kind and session.scalar(select(PairFlag.id).where(
+            PairFlag.material_a_id == flag.material_a_id, PairFlag.material_b_id == flag.material_b_id,
+            PairFlag.kind == kind)) is not None:
+        raise CurationError(f"this pair already has a {kind!r} flag; edit or withdraw that one instead")
+    old = _flag_text(flag)
+    flag.kind, flag.note = kind, note
+    if _flag_text(flag) != old:
+        session.add(AuditEntry(actor=actor or current_actor(), action="update", entity="pair_flag",
+                               entity_id=flag.id, old_value=old, new_value=_flag_text(flag)))
+    session.flush()
+    return flag
+
+
+def withdraw_flag(session: Session, flag_id: int, *, actor: str | None = None) -> str:
+    """Remove a flag; the audit trail keeps what it said. Returns that text."""
+    flag = _stored_flag(session, flag_id)
+    text = _flag_text(flag)
+    session.add(AuditEntry(actor=actor or current_actor(), action="withdraw", entity="pair_flag",
+                           entity_id=flag.id, old_value=text))
+    session.delete(flag)
+    session.flush()
+    return text
+
+
 def list_flags(session: Session) -> list[PairFlag]:
     return list(session.scalars(select(PairFlag).order_by(PairFlag.created_at, PairFlag.id)))

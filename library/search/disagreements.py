@@ -253,6 +253,20 @@ def sides_with(direction: str, observed: float | None, *, observed_alike: float 
     return alike, says_alike if alike else says_unalike
 
 
+def default_flag_kind(direction: str, sides_with_metric: str | None = None) -> str:
+    """The pair-flag kind a person most likely means for a pair disagreeing in `direction`.
+
+    A shape-alike, vibration-unalike pair is "shape-alike smell-different" unless the
+    observation sides with shape (the two smell alike): then "vibration-unalike
+    smell-alike"; the mirror case likewise. The names are those of
+    library.catalogue.observations.FLAG_KINDS."""
+    if direction == SHAPE_NOT_VIBRATION:
+        return "vibration-unalike smell-alike" if sides_with_metric == "shape" else "shape-alike smell-different"
+    if direction == VIBRATION_NOT_SHAPE:
+        return "shape-unalike smell-alike" if sides_with_metric == "vibration" else "vibration-alike smell-different"
+    raise ValueError(f"unknown direction {direction!r}; use one of {', '.join(DIRECTIONS)}")
+
+
 def _observed(observed, id_a, id_b) -> float | None:
     if observed is None:
         return None

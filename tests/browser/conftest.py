@@ -54,7 +54,8 @@ def live_server(tmp_path_factory):
         assert transfer.import_rows(session, rows, actor="seed").count("added") == len(SEED_NAMES)
     with accounts.bookkeeping_sessions(catalogue.engine).begin() as session:
         accounts.create_user(session, "cora", PASSWORD, "curator")
-    app = create_app({"OLIBRA_DB": catalogue.url, "SECRET_KEY": os.urandom(32).hex(), "OLIBRA_JOB_PROCESSES": 1})
+    app = create_app({"OLIBRA_DB": catalogue.url, "SECRET_KEY": os.urandom(32).hex(), "OLIBRA_JOB_PROCESSES": 1,
+                      "OLIBRA_COMPUTE_ON_ADD": False})
     server = make_server("127.0.0.1", 0, app, threaded=True)
     thread = threading.Thread(target=server.serve_forever, name="olibra-test-server", daemon=True)
     thread.start()

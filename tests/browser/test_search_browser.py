@@ -11,7 +11,7 @@ import threading
 import pytest
 from werkzeug.serving import make_server
 
-from library.catalogue import observations
+from library.catalogue import curation, observations
 from library.search import metrics
 from library.catalogue.database import Catalogue
 from webui import create_app
@@ -153,3 +153,43 @@ def test_pair_class_page_tests_the_enantiomers(curator_page, expect, screenshot)
     expect(page.locator("#class-test tbody tr")).to_have_count(len(metrics.names(indexed=True)))
     screenshot(page, "pair-class-test")
     assert page.console_errors == []
+# --- layout at a small laptop's and a phone's width -------------------------------------------------
+
+LAYOUT_WIDTHS = (1024, 390)  # a 1024 px laptop window; a 390 px phone screen (common practice, no source)
+
+
+@pytest.mark.parametrize("width", LAYOUT_WIDTHS)
+def test_every_main_page_fits_the_width_without_horizontal_overflow(curator_page, search_server, expect,
+                                                                   screenshot, width):
+    _, catalogue = search_server
+    with catalogue.reading() as session:
+        citral = curation.find_material(session, "Citral").id
+        octanal = curation.find_material(session, "Octanal").id
+    pages = {"catalogue": "/", "material": f"/materials/{citral}", "substitutes": "/substitutes?material=Citral",
+             "compare": f"/compare?a={citral}&b={octanal}", "disagreements": "/disagreements",
+             "scorecard": "/scorecard", "vocabulary": "/vocabulary", "jobs": "/jobs",
+             "add-material": "/materials/new", "import": "/import", "edit": f"/materials/{citral}/edit",
+             "history": "/history", "pair-classes": "/pairs"}
+    curator_page.set_viewport_size({"width": width, "height": 900})
+    for name, url in pages.items():
+        curator_page.goto(url)
+        sizes = curator_page.evaluate(
+            "() => ({scroll: document.scrollingElement.scrollWidth, inner: window.innerWidth})")
+        screenshot(curator_page, f"layout-{name}-{width}")
+        assert sizes["scroll"] <= sizes["inner"], (name, width, sizes)
+        sign_out = curator_page.get_by_role("button", name="Sign out")
+        expect(sign_out).to_be_visible()
+        box = sign_out.bounding_box()
+        assert box["x"] >= 0 and box["x"] + box["width"] <= sizes["inner"], (name, width, box)
+    # the folded navigation opens from its Menu toggle
+    curator_page.goto("/")
+    nav_link = curator_page.locator("nav.mainnav a", has_text="Disagreements")
+    expect(nav_link).to_be_hidden()
+    curator_page.click("label.nav-toggle-label")
+    expect(nav_link).to_be_visible()
+    # CAS RNs stay on one line: the text of each CAS RN cell lays out as a single line box
+    lines = curator_page.evaluate("""() => [...document.querySelectorAll('td.cas')].map(cell => {
+        const range = document.createRange(); range.selectNodeContents(cell);
+        return new Set([...range.getClientRects()].map(r => Math.round(r.top))).size; })""")
+    assert lines and set(lines) == {1}, lines
+    assert curator_page.console_errors == []

@@ -45,6 +45,26 @@ def test_material_page_with_depiction(signed_in, expect, screenshot):
     assert page.console_errors == []
 
 
+def test_three_mistakes_are_shown_beside_their_fields_after_one_submit(signed_in, live_server, expect, screenshot):
+    page = signed_in
+    page.set_viewport_size({"width": 390, "height": 900})  # a phone: the menu opens from its toggle
+    page.click("label.nav-toggle-label")
+    page.click("nav >> text=Add material")
+    page.fill("#structure", "C1CC(C")  # a broken SMILES (unclosed ring and branch)
+    page.fill("#cas", "121-33-6")  # wrong check digit
+    page.fill("#odors", "vanilla, moonlight")  # not a vocabulary term; the name is left empty
+    page.click("button:has-text('Add material')")
+    errors = page.locator(".field.has-error")
+    expect(errors).to_have_count(4)
+    for field_id, words in (("structure", "SMILES"), ("name", "needs a name"), ("cas", "check digit 6"),
+                            ("odors", "moonlight")):
+        expect(page.locator(f".field.has-error:has(#{field_id}) .error")).to_contain_text(words)
+    screenshot(page, "add-material-errors-390")
+    assert page.evaluate("document.scrollingElement.scrollWidth <= innerWidth")
+    with live_server.catalogue.reading() as session:
+        assert {m.preferred_name for m in session.scalars(select(Material))} == set(live_server.seed_names)
+
+
 def test_add_material_then_duplicate_points_to_it(signed_in, live_server, expect, screenshot):
     page = signed_in
     page.click("nav >> text=Add material")
@@ -104,6 +124,26 @@ def test_vocabulary_page(signed_in, expect, screenshot):
     expect(page.locator(".flash-success")).to_contain_text("seaweed")
     expect(page.locator("table.vocabulary")).to_contain_text("seaweed")
     screenshot(page, "vocabulary")
+
+
+def test_compute_now_from_the_material_page_shows_the_job_and_then_the_records(signed_in, expect, screenshot):
+    page = signed_in
+    page.goto("/")
+    page.click("text=Eugenol")
+    page.click("button:has-text('Compute now')")
+    expect(page.locator(".flash-success")).to_contain_text("computes this material's records")
+    expect(page.locator("#material-job")).to_contain_text("compute shape, vibration records of material #")
+    screenshot(page, "material-compute-now")
+    for _ in range(180):  # the page does not poll; reload until the job ends (the limit only stops a hang)
+        state = page.locator("#material-job .tag").inner_text()
+        if state not in ("queued", "running"):
+            break
+        page.wait_for_timeout(1000)
+        page.reload()
+    assert state == "finished"
+    expect(page.locator("#material-job")).to_contain_text("1 of 1 material done")
+    expect(page.locator(".shape-values")).to_contain_text("NPR1")
+    assert page.locator("table.records .tag-current").count() == 2  # shape and vibration
 
 
 def test_recompute_progress_follows_the_job(signed_in, live_server, expect, screenshot):
