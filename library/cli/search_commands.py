@@ -6,6 +6,7 @@ import json
 import sys
 from pathlib import Path
 
+from library import functional_groups
 from library.catalogue import curation, observations
 from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
@@ -51,6 +52,15 @@ def store_query(catalogue, args) -> str:
     return str(outcome.material.id)
 
 
+def _preset_groups(names) -> list[str]:
+    from library import functional_groups
+
+    try:
+        return [g for name in names or () for g in functional_groups.preset(name)]
+    except functional_groups.GroupError as exc:
+        raise OlibraError(str(exc)) from None
+
+
 def cmd_search(args) -> int:
     catalogue = open_catalogue(args)
     if args.store_as:
@@ -62,7 +72,9 @@ def cmd_search(args) -> int:
     outcome = find_substitutes(
         catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
         rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine,
-        include_demo=args.include_demo)
+        include_demo=args.include_demo, with_groups=args.with_group or (),
+        without_groups=list(args.without_group or ()) + list(_preset_groups(args.stable_in)),
+        include_own_family=args.include_own_family)
     print_substitutes(outcome, fmt=args.format, explain=args.explain, rerank_depth=args.rerank_depth)
     return 0
 
@@ -73,7 +85,8 @@ def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bo
     rows = []
     for c in outcome.candidates:
         row = {"rank": c.rank, "id": c.material.id, "name": c.material.name,
-               "odor": ", ".join(c.material.odors), "smiles": c.material.smiles}
+               "odor": ", ".join(c.material.odors), "smiles": c.material.smiles,
+               "ordered_by": outcome.ordered_by, "groups": ", ".join(functional_groups.groups_of(c.material.smiles))}
         for metric in metrics.names():
             if metric in c.scores:
                 if fmt == "table":
@@ -87,14 +100,15 @@ def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bo
     present = [m for m in metrics.names() if any(m in r for r in rows)]
     columns = ["rank", "id", "name"] + present
     if fmt != "table":
-        columns += [f"{m}_rank" for m in present] + ["odor", "smiles"]
+        columns += [f"{m}_rank" for m in present] + ["ordered_by", "odor", "groups", "smiles"]
     else:
         columns += ["odor"]
     if explain:
         columns += ["volume_ratio", "bands_matched", "bands_unmatched"]
     if fmt == "table":
         weight_text = f", shape weight {outcome.weight}" if outcome.metric == "blend" else ""
-        print(f"substitutes for {outcome.query.label} by {outcome.metric}{weight_text}:")
+        print(f"substitutes for {outcome.query.label} by {outcome.metric}{weight_text} "
+              f"(list ordered by {outcome.ordered_by}):")
     emit(rows, columns, fmt)
     if fmt == "table":
         if outcome.metric == "shape" and rerank_depth:
@@ -295,6 +309,14 @@ def register(commands) -> None:
     p.add_argument("--logp", type=float, nargs=2, metavar=("LOW", "HIGH"), help="computed logP range")
     p.add_argument("--with-odor", nargs="+", metavar="TERM", help="candidates must have these descriptors")
     p.add_argument("--without-odor", nargs="+", metavar="TERM", help="candidates must not have these")
+    p.add_argument("--with-group", nargs="+", metavar="GROUP",
+                   help="candidates must have these functional groups (names from `olibra groups`, or SMARTS)")
+    p.add_argument("--without-group", nargs="+", metavar="GROUP",
+                   help="candidates must not have these functional groups (names or SMARTS)")
+    p.add_argument("--stable-in", nargs="+", metavar="BASE",
+                   help="leave out the groups a base preset avoids (see `olibra groups`; common practice)")
+    p.add_argument("--include-own-family", action="store_true",
+                   help="keep the query's own stereoisomers, isotopologues and mixture isomers")
     p.add_argument("--include-retired", action="store_true")
     p.add_argument("--include-restricted", action="store_true")
     p.add_argument("--include-demo", action="store_true",
