@@ -15,10 +15,12 @@ blueprint = Blueprint("browse", __name__)
 @blueprint.get("/")
 def index():
     query, page_number, include_retired = queries.parse_page_arguments(request.args)
+    filters = queries.parse_catalogue_filters(request.args)
     page = queries.search_materials(db_session(), query, page=page_number, include_retired=include_retired,
-                                    per_page=current_app.config["OLIBRA_PAGE_SIZE"])
+                                    per_page=current_app.config["OLIBRA_PAGE_SIZE"], **filters)
     template = "browse/_results.html" if request.args.get("fragment") == "1" else "browse/index.html"
-    return render_template(template, page=page, query=query, include_retired=include_retired)
+    return render_template(template, page=page, query=query, include_retired=include_retired, filters=filters,
+                           families=queries.olfactive_families(db_session()))
 
 
 def _material_or_404(material_id: int) -> Material:
