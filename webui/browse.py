@@ -5,7 +5,7 @@ from __future__ import annotations
 from flask import Blueprint, Response, abort, current_app, render_template, request
 from sqlalchemy.orm import selectinload
 
-from library import depiction
+from library import depiction, functional_groups
 from library.catalogue.models import Material, MaterialOdor
 from webui import db_session, queries
 
@@ -40,6 +40,7 @@ def material(material_id: int):
     records = queries.record_views(session, found)
     return render_template(
         "browse/material.html", material=found, records=records,
+        groups=functional_groups.groups_of(found.smiles),
         missing_kinds=queries.missing_kinds(records), shape=queries.shape_summary(records),
         history=queries.audit_history(session, found.id), flags=queries.pair_flags(session, found.id),
         summary_rows=queries.summary_rows, provenance_text=queries.provenance_text)

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, selectinload
 
-from library import computations
+from library import computations, functional_groups
 from library.catalogue import records as records_module
 from library.catalogue.models import (
     COMPUTED_KINDS,
@@ -227,6 +227,7 @@ def material_json(material: Material, *, detail: bool = False) -> dict:
             monoisotopic_mass_da=round(material.monoisotopic_mass_da, 6),
             heavy_atom_count=material.heavy_atom_count, stereo_status=material.stereo_status,
             unassigned_stereo_count=material.unassigned_stereo_count, notes=material.notes,
+            functional_groups=list(functional_groups.groups_of(material.smiles)),
             provenance={p.field: provenance_text(p.kind, p.reference) for p in material.provenance},
         )
         for item, odor in zip(data["odor"], sorted(material.odors, key=lambda o: o.descriptor.term)):

@@ -270,6 +270,21 @@ def cmd_metrics(args) -> int:
     return 0
 
 
+def cmd_groups(args) -> int:
+    """The functional-group vocabulary (name, SMARTS) and the base presets (groups each avoids)."""
+    rows = [{"group": name, "smarts": smarts, "description": text}
+            for name, (smarts, text) in functional_groups.VOCABULARY.items()]
+    emit(rows, ["group", "smarts", "description"], args.format, max_width=100)
+    presets = [{"base": name, "avoids": ", ".join(groups), "why": why, "source": functional_groups.PRESET_SOURCE}
+               for name, (groups, why) in functional_groups.BASE_PRESETS.items()]
+    if args.format == "table":
+        print()
+    emit(presets, ["base", "avoids", "why", "source"], args.format, max_width=100)
+    if args.format == "table":
+        print("presets are rules of thumb for --stable-in, not stability findings: test each candidate in the base")
+    return 0
+
+
 def cmd_spectrum(args) -> int:
     from library.vibration.plot import draw_spectrum
 
@@ -356,6 +371,10 @@ def register(commands) -> None:
     p = commands.add_parser("metrics")
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_metrics)
+
+    p = commands.add_parser("groups")
+    p.add_argument("--format", choices=FORMATS, default="table")
+    p.set_defaults(handler=cmd_groups)
 
     p = commands.add_parser("spectrum")
     p.add_argument("material")
