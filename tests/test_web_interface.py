@@ -748,7 +748,7 @@ def test_api_reads_and_writes(client, catalogue):
                            data={"file": (io.BytesIO(GOOD_AND_BAD), "materials.csv")})
     assert imported.status_code == 422
     report = imported.get_json()
-    assert report["committed"] is False and [r["status"] for r in report["rows"]] == ["added", "rejected", "present"]
+    assert report["committed"] is False and [r["status"] for r in report["rows"]] == ["would be added", "rejected", "present"]
     imported = client.post("/api/import", headers=headers, content_type="multipart/form-data",
                            data={"file": (io.BytesIO(GOOD_AND_BAD), "materials.csv"), "keep_good": "1"})
     assert imported.status_code == 200 and imported.get_json()["added"] == 1  # Coumarin is already present

@@ -116,7 +116,7 @@ def test_substitutes_csv_matches_the_page(reader):
 
 def test_substitute_filters_apply(reader, catalogue):
     answer = reader.get("/api/substitutes?material=(R)-(-)-Carvone&metric=shape&k=10&mw_min=100&mw_max=160"
-                        "&without=clove").get_json()
+                        "&without=clove&own_family=1").get_json()  # own_family: keep the mirror image
     assert answer["candidates"]
     for c in answer["candidates"]:
         assert 100 <= c["molecular_weight"] <= 160 and "clove" not in c["odors"]
@@ -445,3 +445,25 @@ def test_spectrum_band_labels_never_overlap_and_diagnostic_groups_come_first():
                                                 "grid_cm1": np.arange(0, 4001, 5.0),
                                                 "curve": np.zeros(801), "bands": bands})()))
     assert svg.count('class="band-label"') == 3 and ">1710 C=O</text>" in svg
+
+
+def test_substitutes_group_filters_own_family_and_ordering_column(reader):
+    answer = reader.get("/api/substitutes?material=Citral&k=10&without_group=aldehyde").get_json()
+    assert answer["ordered_by"] == "blend" and answer["candidates"]
+    assert all("aldehyde" not in c["functional_groups"] for c in answer["candidates"])
+    nitriles = reader.get("/api/substitutes?material=Citral&k=10&with_group=nitrile").get_json()["candidates"]
+    assert {c["name"] for c in nitriles} == {"Geranyl nitrile", "Citronellyl nitrile", "Octanenitrile"}
+    bleach = reader.get("/api/substitutes?material=Citral&k=10&stable_in=hypochlorite bleach").get_json()
+    assert "Geranyl nitrile" not in {c["name"] for c in bleach["candidates"]}
+    assert "IFRA" in bleach["caution"]
+    bad = reader.get("/api/substitutes?material=Citral&with_group=[C(")
+    assert bad.status_code == 400 and "'[C(' is not a valid SMARTS" in error_text(bad)
+    # (S)-(+)-carvone is (R)-(-)-carvone's mirror image: left out unless own_family is asked for
+    mirror = "/api/substitutes?material=(R)-(-)-Carvone&k=11&metric=vibration"
+    assert "(S)-(+)-Carvone" not in {c["name"] for c in reader.get(mirror).get_json()["candidates"]}
+    assert "(S)-(+)-Carvone" in {c["name"] for c in reader.get(mirror + "&own_family=1").get_json()["candidates"]}
+    # a shape search is ordered by overlay, and the page highlights that column, not shape
+    page = reader.get("/substitutes?material=Citral&metric=shape&k=3").text
+    highlighted = re.findall(r'<th class="num ranked-by">([^<]+)</th>', page)
+    assert highlighted == ["overlay"]
+    assert '<span id="ordered-by">overlay</span>' in page

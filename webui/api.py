@@ -127,7 +127,7 @@ def materials():
     if not per_page_text.isdigit() or not 1 <= int(per_page_text) <= queries.MAX_PAGE_SIZE:
         raise OlibraError(f"per_page {per_page_text[:20]!r} must be a whole number from 1 to {queries.MAX_PAGE_SIZE}")
     page = queries.search_materials(db_session(), query, page=page_number, per_page=int(per_page_text),
-                                    include_retired=include_retired)
+                                    include_retired=include_retired, **queries.parse_catalogue_filters(request.args))
     return jsonify(materials=[queries.material_json(m) for m in page.items], total=page.total,
                    page=page.page, per_page=page.per_page, pages=page.pages)
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 from flask import Blueprint, Response, abort, current_app, render_template, request
 from sqlalchemy.orm import selectinload
 
-from library import depiction
+from library import depiction, functional_groups
 from library.catalogue import observations
 from library.catalogue.models import Material, MaterialOdor
 from webui import db_session, queries
@@ -16,10 +16,12 @@ blueprint = Blueprint("browse", __name__)
 @blueprint.get("/")
 def index():
     query, page_number, include_retired = queries.parse_page_arguments(request.args)
+    filters = queries.parse_catalogue_filters(request.args)
     page = queries.search_materials(db_session(), query, page=page_number, include_retired=include_retired,
-                                    per_page=current_app.config["OLIBRA_PAGE_SIZE"])
+                                    per_page=current_app.config["OLIBRA_PAGE_SIZE"], **filters)
     template = "browse/_results.html" if request.args.get("fragment") == "1" else "browse/index.html"
-    return render_template(template, page=page, query=query, include_retired=include_retired)
+    return render_template(template, page=page, query=query, include_retired=include_retired, filters=filters,
+                           families=queries.olfactive_families(db_session()))
 
 
 def _material_or_404(material_id: int) -> Material:
@@ -39,6 +41,7 @@ def material(material_id: int):
     records = queries.record_views(session, found)
     return render_template(
         "browse/material.html", material=found, records=records,
+        groups=functional_groups.groups_of(found.smiles),
         missing_kinds=queries.missing_kinds(records), shape=queries.shape_summary(records),
         history=queries.audit_history(session, found.id), flags=queries.pair_flags(session, found.id),
         job=queries.latest_job_for(session, found.id), flag_kinds=observations.FLAG_KINDS,

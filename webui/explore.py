@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 
 from flask import Response
 
+from library import functional_groups
 from library.catalogue import curation
 from library.catalogue.transfer import spreadsheet_safe
 from library.errors import OlibraError
@@ -84,6 +85,18 @@ def flag_argument(args, name: str) -> bool:
     return (args.get(name) or "").strip().lower() in ("1", "on", "true", "yes")
 
 
+def groups_argument(args, name: str) -> list[str]:
+    """Functional groups (vocabulary names or SMARTS) separated by ';' or given repeatedly; each checked."""
+    values = args.getlist(name) if hasattr(args, "getlist") else [args.get(name) or ""]
+    groups = [g.strip() for v in values for g in v.split(";") if g.strip()]
+    for group in groups:
+        try:
+            functional_groups.pattern(group)
+        except functional_groups.GroupError as exc:
+            raise ArgumentError(str(exc)) from None
+    return groups
+
+
 def terms_argument(args, name: str, label: str, vocabulary: set[str]) -> list[str]:
     """Odor descriptors separated by commas (or given repeatedly); each must be in the vocabulary."""
     values = args.getlist(name) if hasattr(args, "getlist") else [args.get(name) or ""]
@@ -132,6 +145,9 @@ class SubstituteRequest:
     must_not_have: list[str] = field(default_factory=list)
     include_retired: bool = False
     include_restricted: bool = False
+    with_groups: list[str] = field(default_factory=list)
+    without_groups: list[str] = field(default_factory=list)
+    include_own_family: bool = False
 
     @property
     def query_text(self) -> str:
@@ -156,7 +172,16 @@ def substitute_request(args) -> SubstituteRequest:
         both = sorted(set(must_have) & set(must_not_have))
         if both:
             raise ArgumentError(f"{', '.join(both)} cannot be both required and excluded; remove it from one list")
+    with_groups = groups_argument(args, "with_group")
+    without_groups = groups_argument(args, "without_group")
+    for base in [b for b in args.getlist("stable_in") if b.strip()] if hasattr(args, "getlist") else []:
+        try:
+            without_groups += list(functional_groups.preset(base))
+        except functional_groups.GroupError as exc:
+            raise ArgumentError(str(exc)) from None
     return SubstituteRequest(
+        with_groups=with_groups, without_groups=without_groups,
+        include_own_family=flag_argument(args, "own_family"),
         material=text_argument(args, "material", "the material"),
         structure=text_argument(args, "structure", "the structure", limit=MAX_STRUCTURE_CHARS),
         metric=metric,
@@ -197,7 +222,9 @@ def _substitutes(request: SubstituteRequest):
                                        include_restricted=request.include_restricted)
     query = resolve_query(request.query_text, cat_index)
     outcome = substitutes.find_substitutes(web_state().catalogue, query, metric=request.metric,
-                                           weight=request.weight, k=request.k, filters=filters, cat_index=cat_index)
+                                           weight=request.weight, k=request.k, filters=filters, cat_index=cat_index,
+                                           with_groups=request.with_groups, without_groups=request.without_groups,
+                                           include_own_family=request.include_own_family)
     return outcome, cat_index
 
 
@@ -220,14 +247,15 @@ def candidate_row(candidate) -> dict:
             row[metric] = round(candidate.scores[metric], 4)
             row[f"{metric}_rank"] = candidate.ranks.get(metric)
     row.update(odors=list(m.odors), molecular_weight=round(m.molecular_weight, 3), logp=round(m.logp, 3),
-               status=m.status, restricted=m.restricted, smiles=m.smiles)
+               status=m.status, restricted=m.restricted, smiles=m.smiles,
+               functional_groups=list(functional_groups.groups_of(m.smiles)))
     return row
 
 
 def outcome_json(outcome) -> dict:
     query = outcome.query
     return {"query": {"label": query.label, "material_id": query.material_id, "smiles": query.smiles},
-            "metric": outcome.metric, "blend_weight": outcome.weight,
+            "metric": outcome.metric, "ordered_by": outcome.ordered_by, "blend_weight": outcome.weight,
             "candidates": [candidate_row(c) for c in outcome.candidates],
             "notes": outcome.notes, "caution": outcome.caution}
 

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, selectinload
 
-from library import computations
+from library import computations, functional_groups
 from library.catalogue import records as records_module
 from library.catalogue.models import (
     COMPUTED_KINDS,
@@ -59,12 +59,29 @@ def _like_pattern(text: str) -> str:
     return f"%{escaped}%"
 
 
+SORT_COLUMNS = {"name": func.lower(Material.preferred_name), "cas": Material.cas_rn,
+                "family": func.lower(Material.olfactive_family), "id": Material.id}
+
+
+def _has_odor(pattern: str, *, exact: bool = False):
+    """Materials with an odor descriptor whose term (or descriptor family) matches."""
+    term = func.lower(OdorDescriptor.term)
+    matched = (term == pattern) if exact else or_(term.like(pattern, escape="\\"),
+                                                  func.lower(OdorDescriptor.family).like(pattern, escape="\\"))
+    return Material.id.in_(select(MaterialOdor.material_id).join(OdorDescriptor).where(matched))
+
+
 def search_materials(session: Session, query: str = "", *, page: int = 1, per_page: int = 50,
-                     include_retired: bool = False) -> Page:
-    """Materials whose name, synonym, CAS RN or InChIKey contains `query` (case-insensitive), paged."""
+                     include_retired: bool = False, family: str = "", odor: str = "", sort: str = "name",
+                     descending: bool = False) -> Page:
+    """Materials whose name, synonym, CAS RN, InChIKey, olfactive family or odor descriptor contains `query`
+    (case-insensitive), optionally of one olfactive `family` and with one odor descriptor `odor`, paged and
+    sorted by one of SORT_COLUMNS."""
     query = (query or "").strip()
     if len(query) > MAX_QUERY_CHARS:
         raise OlibraError(f"the search text is {len(query)} characters long; use at most {MAX_QUERY_CHARS}")
+    if sort not in SORT_COLUMNS:
+        raise OlibraError(f"cannot sort by {sort[:20]!r}; sort by one of {', '.join(SORT_COLUMNS)}")
     per_page = max(1, min(int(per_page), MAX_PAGE_SIZE))
     page = max(1, int(page))
     conditions = []
@@ -74,17 +91,24 @@ def search_materials(session: Session, query: str = "", *, page: int = 1, per_pa
             func.lower(Material.preferred_name).like(pattern, escape="\\"),
             func.lower(Material.cas_rn).like(pattern, escape="\\"),
             func.lower(Material.inchikey).like(pattern, escape="\\"),
+            func.lower(Material.olfactive_family).like(pattern, escape="\\"),
             Material.id.in_(select(Synonym.material_id).where(
                 func.lower(Synonym.name).like(pattern, escape="\\"))),
+            _has_odor(pattern),
         ))
+    if family.strip():
+        conditions.append(func.lower(Material.olfactive_family) == family.strip().lower())
+    if odor.strip():
+        conditions.append(_has_odor(odor.strip().lower(), exact=True))
     if not include_retired:
         conditions.append(Material.status == "active")
     total = session.scalar(select(func.count()).select_from(Material).where(*conditions)) or 0
+    column = SORT_COLUMNS[sort]
     items = list(session.scalars(
         select(Material).where(*conditions)
         .options(selectinload(Material.synonyms),
                  selectinload(Material.odors).selectinload(MaterialOdor.descriptor))
-        .order_by(func.lower(Material.preferred_name), Material.id)
+        .order_by(column.desc() if descending else column.asc(), Material.id)
         .offset((page - 1) * per_page).limit(per_page)))
     return Page(items, total, page, per_page)
 
@@ -95,6 +119,19 @@ def parse_page_arguments(args) -> tuple[str, int, bool]:
     if not text.isdigit() or int(text) < 1:
         raise OlibraError(f"page {text[:20]!r} is not a page number; use 1, 2, 3 ...")
     return args.get("q", ""), int(text), args.get("retired", "") in ("1", "on", "true", "yes")
+
+
+def olfactive_families(session: Session) -> list[str]:
+    """The olfactive families the catalogue's materials carry, sorted."""
+    return sorted(f for f in session.scalars(select(Material.olfactive_family).distinct()) if f)
+
+
+def parse_catalogue_filters(args) -> dict:
+    """family, odor, sort and descending from request arguments (`sort=-name` sorts descending)."""
+    sort = (args.get("sort", "name").strip() or "name")
+    descending = sort.startswith("-")
+    return {"family": args.get("family", ""), "odor": args.get("odor", ""), "sort": sort.lstrip("-"),
+            "descending": descending}
 
 
 @dataclass(frozen=True)
@@ -190,6 +227,7 @@ def material_json(material: Material, *, detail: bool = False) -> dict:
             monoisotopic_mass_da=round(material.monoisotopic_mass_da, 6),
             heavy_atom_count=material.heavy_atom_count, stereo_status=material.stereo_status,
             unassigned_stereo_count=material.unassigned_stereo_count, notes=material.notes,
+            functional_groups=list(functional_groups.groups_of(material.smiles)),
             provenance={p.field: provenance_text(p.kind, p.reference) for p in material.provenance},
         )
         for item, odor in zip(data["odor"], sorted(material.odors, key=lambda o: o.descriptor.term)):

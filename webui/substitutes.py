@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from flask import Blueprint, Response, render_template, request
 
-from library import depiction
+from library import depiction, functional_groups
 from library.errors import OlibraError
 from library.search import metrics
 from library.search.spectra import fingerprint_curve
@@ -43,6 +43,7 @@ def index():
     status = 400 if error else 200
     return render_template("substitutes/index.html", asked=asked, outcome=outcome, error=error,
                            previews=previews, metrics=metrics.metrics(indexed=True), score_columns=metrics.names(),
+                           group_names=list(functional_groups.VOCABULARY), base_presets=functional_groups.BASE_PRESETS,
                            args=request.args), status
 
 

@@ -52,6 +52,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "compare": ("search_commands", "every metric for a pair, with overlay and band matching"),
     "disagreements": ("search_commands", "pairs where shape and vibration disagree"),
     "metrics": ("search_commands", "the similarity metrics olibra scores, with their definitions"),
+    "groups": ("search_commands", "the functional groups and base presets the search filters use"),
     "spectrum": ("search_commands", "draw a material's vibrational spectrum (sticks and smoothed)"),
     "flag": ("search_commands", "flag a pair of materials"),
     "flags": ("search_commands", "list pair flags"),

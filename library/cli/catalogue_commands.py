@@ -9,7 +9,7 @@ from pathlib import Path
 from sqlalchemy import func, select
 from sqlalchemy.orm import selectinload
 
-from library import computations
+from library import computations, functional_groups
 from library.catalogue import curation, records, restrictions, transfer
 from library.catalogue.database import Catalogue, describe_url, initialize, resolve_url
 from library.catalogue.models import (
@@ -84,6 +84,7 @@ def cmd_show(args) -> int:
             + (f" ({m.unassigned_stereo_count} unassigned: treated as a mixture of stereoisomers)"
                if m.unassigned_stereo_count else ""),
             f"  family          {m.olfactive_family or '-'}",
+            f"  groups          {', '.join(functional_groups.groups_of(m.smiles)) or '-'}",
             f"  odor            {fields['odor'].replace('|', ', ') or '-'}"
             + (f"  ({fields['odor_source']})" if fields["odor"] else ""),
         ]

@@ -6,6 +6,7 @@ import json
 import sys
 from pathlib import Path
 
+from library import functional_groups
 from library.catalogue import curation, observations, restrictions
 from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
@@ -62,6 +63,15 @@ def check_terms(catalogue, args) -> None:
     curation.check_odor_terms(args.without_odor or (), known, label="--without-odor", where=where)
 
 
+def _preset_groups(names) -> list[str]:
+    from library import functional_groups
+
+    try:
+        return [g for name in names or () for g in functional_groups.preset(name)]
+    except functional_groups.GroupError as exc:
+        raise OlibraError(str(exc)) from None
+
+
 def cmd_search(args) -> int:
     catalogue = open_catalogue(args)
     if args.store_as:
@@ -74,7 +84,9 @@ def cmd_search(args) -> int:
     outcome = find_substitutes(
         catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
         rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine,
-        include_demo=args.include_demo)
+        include_demo=args.include_demo, with_groups=args.with_group or (),
+        without_groups=list(args.without_group or ()) + list(_preset_groups(args.stable_in)),
+        include_own_family=args.include_own_family)
     with catalogue.reading() as session:
         tags = restrictions.tags_by_id(session, [c.material.id for c in outcome.candidates])
     print_substitutes(outcome, fmt=args.format, explain=args.explain, rerank_depth=args.rerank_depth,
@@ -91,6 +103,7 @@ def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bo
     for c in outcome.candidates:
         row = {"rank": c.rank, "id": c.material.id, "name": c.material.name,
                "odor": ", ".join(c.material.odors), "smiles": c.material.smiles,
+               "ordered_by": outcome.ordered_by, "groups": ", ".join(functional_groups.groups_of(c.material.smiles)),
                "regulatory": regulatory.get(c.material.id, "")}
         for metric in metrics.names():
             if metric in c.scores:
@@ -105,14 +118,15 @@ def print_substitutes(outcome: SearchOutcome, *, fmt: str = "table", explain: bo
     present = [m for m in metrics.names() if any(m in r for r in rows)]
     columns = ["rank", "id", "name"] + present
     if fmt != "table":
-        columns += [f"{m}_rank" for m in present] + ["odor", "smiles", "regulatory"]
+        columns += [f"{m}_rank" for m in present] + ["ordered_by", "odor", "groups", "smiles", "regulatory"]
     else:
         columns += ["odor", "regulatory"]
     if explain:
         columns += ["volume_ratio", "bands_matched", "bands_unmatched"]
     if fmt == "table":
         weight_text = f", shape weight {outcome.weight}" if outcome.metric == "blend" else ""
-        print(f"substitutes for {outcome.query.label} by {outcome.metric}{weight_text}:")
+        print(f"substitutes for {outcome.query.label} by {outcome.metric}{weight_text} "
+              f"(list ordered by {outcome.ordered_by}):")
     emit(rows, columns, fmt)
     if fmt == "table":
         if outcome.metric == "shape" and rerank_depth:
@@ -298,6 +312,21 @@ def cmd_metrics(args) -> int:
     return 0
 
 
+def cmd_groups(args) -> int:
+    """The functional-group vocabulary (name, SMARTS) and the base presets (groups each avoids)."""
+    rows = [{"group": name, "smarts": smarts, "description": text}
+            for name, (smarts, text) in functional_groups.VOCABULARY.items()]
+    emit(rows, ["group", "smarts", "description"], args.format, max_width=100)
+    presets = [{"base": name, "avoids": ", ".join(groups), "why": why, "source": functional_groups.PRESET_SOURCE}
+               for name, (groups, why) in functional_groups.BASE_PRESETS.items()]
+    if args.format == "table":
+        print()
+    emit(presets, ["base", "avoids", "why", "source"], args.format, max_width=100)
+    if args.format == "table":
+        print("presets are rules of thumb for --stable-in, not stability findings: test each candidate in the base")
+    return 0
+
+
 def cmd_spectrum(args) -> int:
     from library.vibration.plot import draw_spectrum
 
@@ -338,6 +367,14 @@ def register(commands) -> None:
     p.add_argument("--logp", type=float, nargs=2, metavar=("LOW", "HIGH"), help="computed logP range")
     p.add_argument("--with-odor", nargs="+", metavar="TERM", help="candidates must have these descriptors")
     p.add_argument("--without-odor", nargs="+", metavar="TERM", help="candidates must not have these")
+    p.add_argument("--with-group", nargs="+", metavar="GROUP",
+                   help="candidates must have these functional groups (names from `olibra groups`, or SMARTS)")
+    p.add_argument("--without-group", nargs="+", metavar="GROUP",
+                   help="candidates must not have these functional groups (names or SMARTS)")
+    p.add_argument("--stable-in", nargs="+", metavar="BASE",
+                   help="leave out the groups a base preset avoids (see `olibra groups`; common practice)")
+    p.add_argument("--include-own-family", action="store_true",
+                   help="keep the query's own stereoisomers, isotopologues and mixture isomers")
     p.add_argument("--include-retired", action="store_true")
     p.add_argument("--include-restricted", action="store_true")
     p.add_argument("--include-demo", action="store_true",
@@ -378,6 +415,10 @@ def register(commands) -> None:
     p = commands.add_parser("metrics")
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_metrics)
+
+    p = commands.add_parser("groups")
+    p.add_argument("--format", choices=FORMATS, default="table")
+    p.set_defaults(handler=cmd_groups)
 
     p = commands.add_parser("spectrum")
     p.add_argument("material")

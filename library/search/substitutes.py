@@ -61,6 +61,39 @@ def build_filter(*, mw_range=None, logp_range=None, must_have=(), must_not_have=
         raise SearchError(str(exc)) from None
 
 
+def skeleton(smiles: str) -> str | None:
+    """The first InChIKey block (connectivity without stereo or isotopes) of a structure, or None."""
+    from rdkit import Chem, rdBase
+
+    with rdBase.BlockLogs():
+        mol = Chem.MolFromSmiles(smiles)
+        key = Chem.MolToInchiKey(mol) if mol is not None else ""
+    return key.split("-")[0] or None
+
+
+def own_family_ids(query: QueryMaterial, cat_index: CatalogueIndex) -> set[int]:
+    """Catalogue materials of the query's own family: its stereoisomers and isotopologues (same first
+    InChIKey block; a mixture drawn with unassigned stereo shares it with its isomer components)."""
+    block = skeleton(query.smiles)
+    return {i for i, info in cat_index.materials.items()
+            if i != query.material_id and block is not None and skeleton(info.smiles) == block}
+
+
+def group_excluded_ids(cat_index: CatalogueIndex, *, with_groups=(), without_groups=()) -> set[int]:
+    """Materials failing the functional-group filters (names, SMARTS or GroupPattern objects)."""
+    from library import functional_groups
+
+    try:
+        have = [functional_groups.pattern(g) for g in with_groups]
+        avoid = [functional_groups.pattern(g) for g in without_groups]
+    except functional_groups.GroupError as exc:
+        raise SearchError(str(exc)) from None
+    if not have and not avoid:
+        return set()
+    return {i for i, info in cat_index.materials.items()
+            if not functional_groups.passes(info.smiles, must_have=have, must_not_have=avoid)}
+
+
 def check_search(metric: str, weight: float, k: int) -> None:
     """Refuse a metric the index cannot rank by, a blend weight outside 0-1 or a k below 1."""
     try:
@@ -136,11 +169,15 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
                      weight: float = metric_registry.DEFAULT_WEIGHT, k: int = 10,
                      filters: SearchFilter | None = None, rerank_depth: int = DEFAULT_RERANK_DEPTH,
                      explain: bool = False, vibration_engine: str | None = None,
-                     cat_index: CatalogueIndex | None = None, include_demo: bool = False) -> SearchOutcome:
+                     cat_index: CatalogueIndex | None = None, include_demo: bool = False,
+                     with_groups=(), without_groups=(), include_own_family: bool = False) -> SearchOutcome:
     """The k catalogue materials most similar to the query under `metric` (shape re-ranked by overlay).
 
     `query` is a key or structure text (resolved here) or an already resolved QueryMaterial.
-    Demo entries (invented odor notes) are left out unless `include_demo`.
+    Demo entries (invented odor notes) are left out unless `include_demo`; the query's own family
+    (stereoisomers, isotopologues, the isomers of a mixture) unless `include_own_family`.
+    `with_groups` / `without_groups`: functional groups (vocabulary names or SMARTS) candidates must /
+    must not have.
     """
     from library.search.calibration import register_stored
     from library.search.pairs import explain_pair
@@ -156,6 +193,10 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
     demo_ids = {i for i, info in cat_index.materials.items() if info.demo}
     if demo_ids and not include_demo:
         filters = replace(filters, exclude_ids=filters.exclude_ids | demo_ids)
+    family = set() if include_own_family else own_family_ids(query, cat_index)
+    by_groups = group_excluded_ids(cat_index, with_groups=with_groups, without_groups=without_groups)
+    if family or by_groups:
+        filters = replace(filters, exclude_ids=filters.exclude_ids | family | by_groups)
     rerank = (overlay_scorer(catalogue, cat_index, query, depth=rerank_depth)
               if metric == "shape" and rerank_depth > 0 else None)
     try:
@@ -173,6 +214,10 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
     if getattr(metric_registry.get(metric), "stale", False):
         notes.append(f"metric {metric} is stale: the observations it was calibrated on changed since; "
                      "run `olibra calibrate` again")
+    if family:
+        names = ", ".join(sorted(cat_index.materials[i].name for i in family))
+        notes.append(f"the query's own family left out (stereoisomers, isotopologues, mixture isomers): {names}; "
+                     "bring them back with the own-family switch")
     if cat_index.unindexed:
         notes.append(f"{len(cat_index.unindexed)} material(s) without current records are not searched; "
                      "compute their records to include them")

@@ -12,6 +12,10 @@
       var params = new URLSearchParams();
       if (input.value.trim()) params.set("q", input.value.trim());
       if (retired && retired.checked) params.set("retired", "1");
+      ["family", "odor", "sort"].forEach(function (name) {  // the catalogue's filters and sort order
+        var field = form.querySelector("[name=" + name + "]");
+        if (field && field.value.trim()) params.set(name, field.value.trim());
+      });
       var shown = params.toString();
       params.set("fragment", "1");
       var mine = ++sequence;
