@@ -36,7 +36,7 @@ NAMING_CONVENTION = {
 PROVENANCE_KINDS = ("measured", "literature", "from memory", "computed", "demo")
 STEREO_STATUSES = ("defined", "partly undefined", "none")
 MATERIAL_STATUSES = ("active", "retired")
-COMPUTED_KINDS = ("shape", "vibration")
+COMPUTED_KINDS = ("shape", "vibration", "tunnelling")
 
 
 def utc_now() -> dt.datetime:
