@@ -115,4 +115,22 @@ def run(*, engines=None, processes: int | None = None, out=sys.stdout, gfn2_mate
                                             processes=processes, say=say, label=f"[{engine}] ")
     if "gfn2" in figures:
         figures["gfn2_hessian"] = _hessian_timings(say)
+    figures["tunnelling_ms_per_material"] = _tunnelling_cost(names[:8], say)
     return figures
+
+
+def _tunnelling_cost(names, say) -> float:
+    """Milliseconds per material to turn a computed MMFF94 spectrum into its tunnelling record."""
+    from library import conformers
+    from library.computations import tunnelling_record
+    from library.vibration.spectrum import spectrum
+
+    smiles = dict(benchmark_materials())
+    spectra = [spectrum(conformers.ensemble(smiles[name])) for name in names]
+    start = time.perf_counter()
+    for result in spectra:
+        tunnelling_record(result)
+    cost_ms = (time.perf_counter() - start) / len(spectra) * 1e3
+    say(f"[tunnelling] {cost_ms:.1f} ms per material beyond its vibration spectrum ({len(spectra)} materials, "
+        f"load average {os.getloadavg()[0]:.2f})")
+    return cost_ms

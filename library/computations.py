@@ -1,8 +1,10 @@
 """What olibra computes and stores for each material, from its standardized SMILES.
 
-One conformer ensemble serves both descriptions: the shape record (moments,
-principal-moment ratios, volume...) and the vibration record (conformer-averaged
-harmonic spectrum and its fingerprint). The functions here run inside worker
+One conformer ensemble serves every description: the shape record (moments,
+principal-moment ratios, volume...), the vibration record (conformer-averaged
+harmonic spectrum and its fingerprint) and the tunnelling record (the receptor
+model computed from that same spectrum, kept apart so it never mixes with EVA
+records). The functions here run inside worker
 processes, so they take and return only plain, picklable values.
 """
 
@@ -15,7 +17,7 @@ import numpy as np
 
 from library.catalogue.records import EngineStamp
 
-KINDS = ("shape", "vibration")
+KINDS = ("shape", "vibration", "tunnelling")
 # What a shape record holds besides the descriptors: the ensemble itself, so
 # that overlays need no new embedding.
 SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments and shape values+mirror flags/4"
@@ -54,6 +56,18 @@ def stamps(plan: Plan) -> list[EngineStamp]:
         out.append(EngineStamp("vibration", module.ENGINE_NAME, module.ENGINE_VERSION,
                                spectrum_module.record_parameters(plan.vibration_engine,
                                                                  **plan.ensemble_knobs)))
+    if "tunnelling" in plan.kinds:
+        from library.vibration import engines
+        from library.vibration import spectrum as spectrum_module
+        from library.vibration import tunnelling
+
+        # same engine name as the vibration record it derives from; its own kind, version and settings
+        module = engines.engine_module(plan.vibration_engine)
+        out.append(EngineStamp("tunnelling", module.ENGINE_NAME,
+                               f"{module.ENGINE_VERSION}+tunnelling-{tunnelling.ENGINE_VERSION}",
+                               {"spectrum": spectrum_module.record_parameters(plan.vibration_engine,
+                                                                              **plan.ensemble_knobs),
+                                "tunnelling": tunnelling.parameters()}))
     return out
 
 
@@ -63,7 +77,7 @@ def current_stamps() -> dict[tuple[str, str], EngineStamp]:
     from library.vibration import engines
 
     out: dict[tuple[str, str], EngineStamp] = {}
-    plans = [Plan(kinds=("shape",))] + [Plan(kinds=("vibration",), vibration_engine=e) for e in engines.keys()]
+    plans = [Plan(kinds=("shape",))] + [Plan(kinds=("vibration", "tunnelling"), vibration_engine=e) for e in engines.keys()]
     for plan in plans:
         try:
             found = stamps(plan)
@@ -92,14 +106,26 @@ def compute_material(plan: Plan, smiles: str) -> dict[str, tuple[dict, dict]]:
         summary["ensemble_of"] = list(ens.representatives)
         summary["mirrored_conformers"] = int(sum(m.mirrored for m in ens.members))
         out["shape"] = (arrays, summary)
-    if "vibration" in plan.kinds:
+    if "vibration" in plan.kinds or "tunnelling" in plan.kinds:
         from library.vibration import spectrum as spectrum_module
 
         result = spectrum_module.spectrum(ens, engine=plan.vibration_engine)
-        arrays = result.to_arrays()
-        arrays.update(fingerprint_arrays(result))
-        out["vibration"] = (arrays, result.summary())
+        if "vibration" in plan.kinds:
+            arrays = result.to_arrays()
+            arrays.update(fingerprint_arrays(result))
+            out["vibration"] = (arrays, result.summary())
+        if "tunnelling" in plan.kinds:
+            out["tunnelling"] = tunnelling_record(result)
     return out
+
+
+def tunnelling_record(result) -> tuple[dict, dict]:
+    """The tunnelling record of a vibration spectrum: per-conformer Huang-Rhys factors and the
+    Boltzmann-averaged tunnelling spectrum (library.vibration.tunnelling, default settings)."""
+    from library.vibration import tunnelling
+
+    described = tunnelling.tunnelling_spectrum(result)
+    return described.to_arrays(), described.summary()
 
 
 def fingerprint_arrays(result) -> dict[str, np.ndarray]:

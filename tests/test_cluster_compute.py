@@ -73,7 +73,7 @@ def test_a_local_dask_cluster_stores_the_records_the_local_runner_stores(tmp_pat
                       cluster="local:2")
     assert first.done == second.done == count and not first.failures and not second.failures
     expected, found = stored(local), stored(on_cluster)
-    assert expected.keys() == found.keys() and len(found) == 2 * count
+    assert expected.keys() == found.keys() and len(found) == len(computations.KINDS) * count
     for key, (version, parameter_hash, arrays) in expected.items():
         assert found[key][:2] == (version, parameter_hash)  # the same stamps
         assert found[key][2].keys() == arrays.keys()
@@ -175,9 +175,9 @@ def test_a_worker_killed_mid_run_leaves_every_material_computed_once(catalogue_u
     assert f"{count} of {count} material(s) computed" in out and "Traceback" not in err
     records, highest, per_kind = record_counts(catalogue)
     # every material has one record per kind, written once (no record was replaced: ids 1..2N)
-    assert records == highest == 2 * count
+    assert records == highest == len(computations.KINDS) * count
     # every record is whole: each kind has one fixed set of arrays
-    assert set(per_kind) == {"shape", "vibration"} and all(len(sizes) == 1 for sizes in per_kind.values())
+    assert set(per_kind) == set(computations.KINDS) and all(len(sizes) == 1 for sizes in per_kind.values())
     stamps = computations.stamps(computations.Plan())
     assert jobs.select_materials(catalogue, stamps) == []
     catalogue.dispose()
@@ -190,12 +190,12 @@ def test_ctrl_c_on_the_coordinator_keeps_whole_records_and_a_rerun_resumes(tmp_p
     catalogue = seed_catalogue(url, count)
     command = interrupt_compute(url, ["--cluster", "local:2"], lambda: record_counts(catalogue)[0], 2)
     records, _, per_kind = record_counts(catalogue)
-    assert 2 <= records < 2 * count and records % 2 == 0  # whole materials: both records or none
+    assert len(computations.KINDS) <= records < len(computations.KINDS) * count and records % len(computations.KINDS) == 0  # whole materials: every record or none
     assert all(len(sizes) == 1 for sizes in per_kind.values())  # every stored record is whole
     again = subprocess.run(command, capture_output=True, text=True, timeout=600)
     assert again.returncode == 0, again.stderr
-    assert f"{count - records // 2} of {count - records // 2} material(s) computed" in again.stdout
-    assert record_counts(catalogue)[0] == 2 * count
+    assert f"{count - records // len(computations.KINDS)} of {count - records // len(computations.KINDS)} material(s) computed" in again.stdout
+    assert record_counts(catalogue)[0] == len(computations.KINDS) * count
     catalogue.dispose()
 
 
@@ -215,6 +215,6 @@ def test_two_coordinators_computing_one_catalogue_at_once_write_each_record_once
     stored_by_each = [int(out.split(" of ")[0].split()[-1]) for out, _ in outputs]
     assert sum(stored_by_each) == count  # each material is stored by one of the two
     records, highest, per_kind = record_counts(catalogue)
-    assert records == highest == 2 * count  # one record per material and kind, none replaced
+    assert records == highest == len(computations.KINDS) * count  # one record per material and kind, none replaced
     assert all(len(sizes) == 1 for sizes in per_kind.values())
     catalogue.dispose()

@@ -32,9 +32,9 @@ def with_plain_usr(monkeypatch):
 
 def test_registered_metrics_and_their_definitions():
     assert metrics.names() == ("shape", "overlay", "handedness", "vibration", "vibration-ir", "vibration-window",
-                               "blend", "blend-rank", "structure")
-    assert metrics.names(indexed=True) == ("shape", "vibration", "vibration-ir", "vibration-window", "blend",
-                                           "blend-rank", "structure")
+                               "tunnelling", "blend", "blend-rank", "structure")
+    assert metrics.names(indexed=True) == ("shape", "vibration", "vibration-ir", "vibration-window", "tunnelling",
+                                           "blend", "blend-rank", "structure")
     assert all(m.description for m in metrics.metrics())
     # the USR formula of J. Comput. Chem. 28, 1711 (2007): S = 1 / (1 + mean |a - b|)
     assert usr_similarity(2.0) == pytest.approx(1 / 3)

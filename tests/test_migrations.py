@@ -30,3 +30,26 @@ def test_uninitialized_catalogue_is_refused_with_advice(sqlite_url):
     with pytest.raises(CatalogueError, match="holds no olibra catalogue yet; create it first") as refused:
         Catalogue(sqlite_url)
     assert refused.value.remedy == Remedy.INIT_CATALOGUE  # each front end names its own way to do that
+
+
+def test_tunnelling_kind_migration_keeps_every_records_arrays(catalogue_url):
+    # the kind-check change rebuilds computed_record on SQLite; its arrays (ON DELETE CASCADE) must survive
+    from alembic import command
+
+    from library.catalogue import curation, records
+    from library.catalogue.database import alembic_config
+    from tests.catalogue_helpers import draft
+
+    opened = initialize(catalogue_url)
+    stamp = records.EngineStamp("shape", "test-engine", "1", {})
+    with opened.transaction() as session:
+        material = curation.add_material(session, draft("CCO", "Ethanol")).material
+        records.save_record(session, material, stamp, {"values": [1.0, 2.0]}, {})
+        material_id = material.id
+    config = alembic_config(opened.engine)
+    for step in (lambda: command.downgrade(config, "862b46cd7195"), lambda: command.upgrade(config, "head")):
+        step()
+        with opened.reading() as session:
+            kept = records.load_records(session, "shape", "test-engine")
+            assert kept[material_id].arrays["values"].tolist() == [1.0, 2.0]
+    opened.dispose()

@@ -37,7 +37,7 @@ NAMING_CONVENTION = {
 PROVENANCE_KINDS = ("measured", "literature", "from memory", "computed", "demo")
 STEREO_STATUSES = ("defined", "partly undefined", "none")
 MATERIAL_STATUSES = ("active", "retired")
-COMPUTED_KINDS = ("shape", "vibration")
+COMPUTED_KINDS = ("shape", "vibration", "tunnelling")
 # prohibited; restricted (a maximum level in a product category); specification required (a purity or
 # composition the material must meet); allergen (to be declared on the label above a threshold)
 RESTRICTION_KINDS = ("prohibited", "restricted", "specification", "allergen")

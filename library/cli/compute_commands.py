@@ -55,7 +55,7 @@ def cmd_status(args) -> int:
 
 def register(commands) -> None:
     p = commands.add_parser("compute")
-    p.add_argument("what", choices=("shape", "vibration", "all"))
+    p.add_argument("what", choices=(*computations.KINDS, "all"))
     p.add_argument("materials", nargs="*", metavar="MATERIAL",
                    help="only these materials (id, name, synonym, CAS RN or InChIKey)")
     p.add_argument("--all", action="store_true", help="recompute every active material, even if current")

@@ -11,6 +11,8 @@ overlay    Gaussian shape Tanimoto of the best rotation-only superposition (J. C
            17, 1653 (1996)); scored on demand from the stored conformers, not from the index
 vibration  cosine of EVA fingerprints (J. Comput.-Aided Mol. Des. 11, 143 (1997)); the
            fingerprints are non-negative, so the cosine lies in 0-1
+tunnelling cosine of phonon-assisted tunnelling spectra (Phys. Rev. Lett. 98, 038101 (2007);
+           library.vibration.tunnelling): a receptor model of a contested hypothesis
 blend      ``w * shape + (1 - w) * vibration``, ``w`` the shape weight in 0-1
 blend-rank ``w * P(shape) + (1 - w) * P(vibration)``, P the percentile (0-1) of a similarity among
            the catalogue's pairs, so the two parts are on one scale and 0.5 is an even mix
@@ -146,6 +148,8 @@ FEATURES: dict[str, Feature] = {
                 "vibration", ("fingerprint",), unit_rows),
         Feature("fingerprint_ir", "EVA fingerprint with each mode weighted by its IR intensity, unit norm",
                 "vibration", ("fingerprint_ir",), unit_rows),
+        Feature("tunnelling", "Boltzmann-averaged inelastic tunnelling rate over receptor gaps 0-0.5 eV, unit norm",
+                "tunnelling", ("tunnelling_spectrum",), unit_rows),
         Feature("structure", "Morgan radius-2, 2048-bit fingerprint, packed", None, (), packed_bits, _bit_words),
     )
 }
@@ -603,6 +607,9 @@ register(VibrationMetric(
     "vibration-window", "cosine of EVA fingerprints over 400-2400 cm-1 only, below the X-H stretches that "
     "dominate every organic spectrum", features=("fingerprint",), records=("vibration",),
     window_cm1=(400.0, 2400.0)))
+register(VibrationMetric(
+    "tunnelling", "cosine of phonon-assisted tunnelling spectra over receptor gaps (Phys. Rev. Lett. 98, "
+    "038101 (2007)): a model of a contested hypothesis", features=("tunnelling",), records=("tunnelling",)))
 register(BlendMetric(
     "blend", "w * shape + (1 - w) * vibration, w the shape weight (0-1)",
     components=("shape", "vibration"), records=("shape", "vibration"), uses_weight=True))
