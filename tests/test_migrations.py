@@ -47,7 +47,7 @@ def test_tunnelling_kind_migration_keeps_every_records_arrays(catalogue_url):
         records.save_record(session, material, stamp, {"values": [1.0, 2.0]}, {})
         material_id = material.id
     config = alembic_config(opened.engine)
-    for step in (lambda: command.downgrade(config, "862b46cd7195"), lambda: command.upgrade(config, "head")):
+    for step in (lambda: command.downgrade(config, "5c1e0a7d2b94"), lambda: command.upgrade(config, "head")):
         step()
         with opened.reading() as session:
             kept = records.load_records(session, "shape", "test-engine")

@@ -125,11 +125,11 @@ def load_index(catalogue, *, vibration_engine: str = DEFAULT_ENGINE, cache_dir: 
         cached = SimilarityIndex.load(path, revision.key) if path is not None else None
         if cached is not None and cached.load_extra("materials") is not None:
             return _from_cache(cached, revision, vibration_engine)
-        infos, ready = _catalogue_state(session, stamps)
+        infos, ready, kinds = _catalogue_state(session, stamps)
         if not ready:
             raise SearchError("no material has current shape and vibration records yet; compute them first",
                               remedy=Remedy.COMPUTE_RECORDS)
-        loaded = _load_features(session, stamps, ready, infos)
+        loaded = _load_features(session, stamps, ready, infos, kinds)
     index = SimilarityIndex(pca_components=64 if len(ready) > PCA_ABOVE else None).fit(
         np.array(ready, dtype=np.int64), features=loaded,
         properties={"molecular_weight": [infos[i].molecular_weight for i in ready],
@@ -155,8 +155,15 @@ def _from_cache(index: SimilarityIndex, revision: IndexRevision, engine: str) ->
     return CatalogueIndex(index, materials, infos("unindexed"), revision, engine, from_cache=True)
 
 
-def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int]]:
-    """Every material's MaterialInfo, and the ids of those with current records of every needed kind."""
+# Record kinds an index can do without: until every indexable material has a current record of such
+# a kind (e.g. after an upgrade, before `olibra compute tunnelling`), the metrics reading it are left
+# out of the index instead of the materials.
+OPTIONAL_KINDS = ("tunnelling",)
+
+
+def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int], tuple[str, ...]]:
+    """Every material's MaterialInfo, the ids of those with current records of every required kind,
+    and the record kinds to read (the required ones and each optional one all of those materials have)."""
     from sqlalchemy import select
     from sqlalchemy.orm import selectinload
 
@@ -172,8 +179,11 @@ def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int
              for m in materials}
     kinds = needed_kinds()
     state = {kind: records.record_state(session, stamps[kind], include_retired=True) for kind in kinds}
-    ready = [i for i in infos if all(state[kind].get(i) == "current" for kind in kinds)]
-    return infos, ready
+    required = [kind for kind in kinds if kind not in OPTIONAL_KINDS]
+    ready = [i for i in infos if all(state[kind].get(i) == "current" for kind in required)]
+    complete = tuple(kind for kind in kinds if kind in required
+                     or (ready and all(state[kind].get(i) == "current" for i in ready)))
+    return infos, ready, complete
 
 
 def needed_kinds() -> tuple[str, ...]:
@@ -185,14 +195,16 @@ def needed_kinds() -> tuple[str, ...]:
     return tuple(kinds)
 
 
-def _load_features(session, stamps, ready: list[int], infos: dict[int, MaterialInfo]) -> dict[str, np.ndarray]:
+def _load_features(session, stamps, ready: list[int], infos: dict[int, MaterialInfo],
+                   kinds: tuple[str, ...] | None = None) -> dict[str, np.ndarray]:
     """Feature matrices (rows in the order of `ready`) read from the records.
 
     Streams the records a chunk of materials at a time (records.iter_arrays) into matrices allocated
     once, so building the index from the database needs about the memory of the index itself."""
     from library.catalogue import records
 
-    kinds = needed_kinds()
+    every_kind = needed_kinds()
+    kinds = every_kind if kinds is None else kinds
     features = metric_registry.FEATURES
     out: dict[str, np.ndarray | list] = {name: [] for name, f in features.items() if f.record_kind is None}
     complete = {name: True for name, f in features.items() if f.record_kind is not None}
@@ -202,7 +214,7 @@ def _load_features(session, stamps, ready: list[int], infos: dict[int, MaterialI
                                                   metric_registry.record_arrays(kind)))
                    for kind in kinds}
         for offset, material_id in enumerate(part):
-            arrays = {kind: by_kind[kind].get(material_id, {}) for kind in kinds}
+            arrays = {kind: by_kind[kind].get(material_id, {}) if kind in by_kind else {} for kind in every_kind}
             for name, feature in features.items():
                 if feature.record_kind is None:
                     out[name].append(metric_registry.feature_row(name, arrays, infos[material_id].smiles))
