@@ -38,7 +38,7 @@ def test_tunnelling_kind_migration_keeps_every_records_arrays(catalogue_url):
 
     from library.catalogue import curation, records
     from library.catalogue.database import alembic_config
-    from tests.catalogue_helpers import draft
+    from catalogue_helpers import draft
 
     opened = initialize(catalogue_url)
     stamp = records.EngineStamp("shape", "test-engine", "1", {})

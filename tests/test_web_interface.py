@@ -560,7 +560,7 @@ def test_an_added_material_gets_its_records_queued_and_shows_the_job(app, client
     assert job["state"] == "finished" and (job["total"], job["done"], job["failed"]) == (1, 1, 0), job
     assert job["parameters"]["material_ids"] == [vanillin]
     page = client.get(f"/materials/{vanillin}").text
-    assert "NPR1" in page and page.count("tag-current") == 2  # shape and vibration records
+    assert "NPR1" in page and page.count("tag-current") == 3  # shape, vibration and tunnelling records
     # compute now: every record is current, so the job has nothing to do and says so
     again = client.post(f"/materials/{vanillin}/compute", data={"csrf_token": token}, follow_redirects=True)
     assert "computes this material" in again.text and "tag-finished" in again.text
@@ -756,7 +756,7 @@ def test_api_reads_and_writes(client, catalogue):
 
     assert client.get("/api/jobs/12345").status_code == 404
     jobs = client.get("/api/jobs").get_json()
-    assert jobs["jobs"] == [] and {r["kind"] for r in jobs["records"]} == {"shape", "vibration"}
+    assert jobs["jobs"] == [] and {r["kind"] for r in jobs["records"]} == {"shape", "vibration", "tunnelling"}
     assert client.delete("/api/session", headers=headers).get_json() == {"signed_in": False}
     assert client.get("/api/materials").status_code == 401
 

@@ -132,7 +132,7 @@ def test_compute_now_from_the_material_page_shows_the_job_and_then_the_records(s
     page.click("text=Eugenol")
     page.click("button:has-text('Compute now')")
     expect(page.locator(".flash-success")).to_contain_text("computes this material's records")
-    expect(page.locator("#material-job")).to_contain_text("compute shape, vibration records of material #")
+    expect(page.locator("#material-job")).to_contain_text("compute shape, vibration, tunnelling records of material #")
     screenshot(page, "material-compute-now")
     for _ in range(180):  # the page does not poll; reload until the job ends (the limit only stops a hang)
         state = page.locator("#material-job .tag").inner_text()
@@ -143,7 +143,7 @@ def test_compute_now_from_the_material_page_shows_the_job_and_then_the_records(s
     assert state == "finished"
     expect(page.locator("#material-job")).to_contain_text("1 of 1 material done")
     expect(page.locator(".shape-values")).to_contain_text("NPR1")
-    assert page.locator("table.records .tag-current").count() == 2  # shape and vibration
+    assert page.locator("table.records .tag-current").count() == 3  # shape, vibration and tunnelling
 
 
 def test_recompute_progress_follows_the_job(signed_in, live_server, expect, screenshot):
