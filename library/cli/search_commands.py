@@ -207,9 +207,10 @@ def cmd_disagreements(args) -> int:
     cat_index = load_index(catalogue, **({"vibration_engine": args.engine} if args.engine else {}))
     thresholds = dict(min_shape=args.min_shape, max_vibration=args.max_vibration,
                       min_vibration=args.min_vibration, max_shape=args.max_shape)
-    used = describe_thresholds(resolved_thresholds(cat_index, **thresholds))
-    rows, label = find_disagreement_rows(
-        catalogue, k=args.neighbors, **thresholds, direction=args.direction,
+    resolved = resolved_thresholds(cat_index, **thresholds)
+    used = describe_thresholds(resolved)
+    rows, label = find_disagreement_rows(  # the similarities the percentiles resolved to, sampled once
+        catalogue, k=args.neighbors, **{name: value for name, (value, _) in resolved.items()}, direction=args.direction,
         observation=observation, include_retired=args.include_retired, cat_index=cat_index)
     table = []
     for r in rows[: args.limit]:
