@@ -15,7 +15,6 @@ import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-import scipy.constants
 from rdkit import Chem, rdBase
 from rdkit.Chem import rdDistGeom, rdForceFieldHelpers, rdMolAlign, rdMolDescriptors
 from rdkit.Chem.EnumerateStereoisomers import (
@@ -24,6 +23,7 @@ from rdkit.Chem.EnumerateStereoisomers import (
 )
 from rdkit.Geometry import Point3D
 
+from library import units
 from library.errors import OlibraError
 
 __all__ = [
@@ -42,8 +42,8 @@ __all__ = [
 #: Largest structure accepted (heavy atoms); odorants rarely exceed ~30.
 MAX_HEAVY_ATOMS = 80
 
-#: Gas constant in kcal/(mol K), from CODATA via scipy.constants.
-GAS_CONSTANT_KCAL_PER_MOL_K = scipy.constants.R / (1000.0 * scipy.constants.calorie)
+#: Gas constant in kcal/(mol K) (CODATA, see library.units).
+GAS_CONSTANT_KCAL_PER_MOL_K = units.GAS_CONSTANT_KCAL_PER_MOL_K
 
 # Default conformer cap: BASE + PER_ROTOR * rotatable bonds, at most CEILING.
 _CAP_BASE = 2

@@ -4,7 +4,8 @@ import pytest
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 
-from library.catalogue.database import CatalogueError, Catalogue, head_revision, initialize, make_engine
+from library.catalogue.database import (
+    SCHEMA_HEAD, CatalogueError, Catalogue, current_revision, head_revision, initialize, make_engine)
 from library.catalogue.models import Base
 from library.errors import Remedy
 
@@ -22,7 +23,26 @@ def test_init_is_idempotent_and_reaches_head(catalogue_url):
     opened = initialize(catalogue_url)
     with opened.engine.connect() as connection:
         assert MigrationContext.configure(connection).get_current_revision() == head_revision()
+    assert current_revision(opened.engine) == head_revision()  # olibra's own read of the version table
     opened.dispose()
+
+
+def test_written_out_schema_head_is_the_migration_scripts_head():
+    # opening a catalogue compares with SCHEMA_HEAD; a new migration must move it (Alembic is the reference)
+    assert SCHEMA_HEAD == head_revision()
+
+
+def test_older_schema_is_refused_with_advice(sqlite_url):
+    from alembic import command
+
+    from library.catalogue.database import alembic_config
+
+    engine = make_engine(sqlite_url)
+    command.upgrade(alembic_config(engine), "head")
+    command.downgrade(alembic_config(engine), "-1")
+    with pytest.raises(CatalogueError, match=r"schema is at revision \w+, this olibra needs " + SCHEMA_HEAD):
+        Catalogue(sqlite_url)
+    engine.dispose()
 
 
 def test_uninitialized_catalogue_is_refused_with_advice(sqlite_url):

@@ -12,7 +12,7 @@ from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
-from library.search import metrics, scorecard
+from library.search import metrics
 from library.search.disagreement_policy import describe_thresholds, find_disagreement_rows, resolved_thresholds
 from library.search.disagreements import DIRECTIONS, sides_with_tally, tally_lines
 from library.search.evidence import run_scorecard
@@ -273,6 +273,8 @@ def cmd_observations(args) -> int:
 
 
 def cmd_scorecard(args) -> int:
+    from library.search import scorecard  # on use: it imports scipy.stats
+
     catalogue = open_catalogue(args)
     report, label, notes = run_scorecard(
         catalogue, observation=args.observed, k=args.k, permutations=args.permutations,

@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from library.search import scorecard
 from library.search.catalogue_index import CatalogueIndex, load_index
 from library.search.errors import SearchError
 from library.search.index import SimilarityIndex
@@ -28,6 +27,7 @@ def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, perm
     The partial Mantel test controls for the structure metric and, with ``control_size``, also for
     molecular size (closeness of molecular weight, g/mol: similarity -|MW_a - MW_b|)."""
     from library.catalogue import curation, observations
+    from library.search import scorecard  # on use: it imports scipy.stats (about 0.4 s at start-up)
 
     if cat_index is None:
         cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))

@@ -80,8 +80,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import constants as _c
-
 from library import units
 
 ENGINE_VERSION = "1"
@@ -96,9 +94,9 @@ DEFAULTS = {
     "step_ev": 0.001,
 }
 _ORIENTATION_FACTORS = {"average": 1.0 / 6.0, "aligned": 1.0 / 2.0}
-EV_J = _c.electron_volt
-BOLTZMANN_EV_PER_K = _c.k / _c.electron_volt
-CM1_TO_EV = _c.h * _c.c * 100.0 / _c.electron_volt  # energy of 1 cm^-1, eV
+EV_J = units.ELECTRON_VOLT_J
+BOLTZMANN_EV_PER_K = units.BOLTZMANN_J_PER_K / EV_J
+CM1_TO_EV = units.PLANCK_J_S * units.SPEED_OF_LIGHT_M_PER_S * 100.0 / EV_J  # energy of 1 cm^-1, eV
 CAUTION = "a model of a contested hypothesis (vibrational theory of olfaction), not an established mechanism"
 
 
@@ -127,12 +125,12 @@ def gap_grid_ev(*, min_ev: float = 0.0, max_ev: float = 0.5, step_ev: float = 0.
 def dipole_derivative_squared_si(ir_intensities_km_mol) -> np.ndarray:
     """|dmu/dQ_k|^2 in C^2/kg (mass-weighted normal coordinates) from integrated IR intensities (km/mol)."""
     e2_per_amu = np.asarray(ir_intensities_km_mol, float) / units.IR_E2_PER_AMU_TO_KM_PER_MOL
-    return e2_per_amu * _c.e**2 / units.ATOMIC_MASS_UNIT_KG
+    return e2_per_amu * units.ELEMENTARY_CHARGE_C**2 / units.ATOMIC_MASS_UNIT_KG
 
 
 def angular_frequency_rad_s(frequencies_cm1) -> np.ndarray:
     """omega (rad/s) of wavenumbers in cm^-1."""
-    return 2.0 * np.pi * _c.c * 100.0 * np.asarray(frequencies_cm1, float)
+    return 2.0 * np.pi * units.SPEED_OF_LIGHT_M_PER_S * 100.0 * np.asarray(frequencies_cm1, float)
 
 
 def huang_rhys(frequencies_cm1, ir_intensities_km_mol, *, field_v_per_a: float = DEFAULTS["field_v_per_a"],
@@ -144,10 +142,10 @@ def huang_rhys(frequencies_cm1, ir_intensities_km_mol, *, field_v_per_a: float =
     """
     factor = _ORIENTATION_FACTORS[orientation]
     omega = angular_frequency_rad_s(frequencies_cm1)
-    field_v_per_m = field_v_per_a / _c.angstrom
+    field_v_per_m = field_v_per_a / units.ANGSTROM_M
     derivative2 = dipole_derivative_squared_si(ir_intensities_km_mol)
     safe = np.where(omega > 0, omega, 1.0)
-    return np.where(omega > 0, factor * field_v_per_m**2 * derivative2 / (_c.hbar * safe**3), 0.0)
+    return np.where(omega > 0, factor * field_v_per_m**2 * derivative2 / (units.HBAR_J_S * safe**3), 0.0)
 
 
 def marcus_gaussian(x_ev, *, lambda_ev: float, temperature_k: float) -> np.ndarray:
@@ -159,7 +157,7 @@ def marcus_gaussian(x_ev, *, lambda_ev: float, temperature_k: float) -> np.ndarr
 
 def _rate_prefactor_s(hopping_ev: float) -> float:
     """(2 pi / hbar) t^2 in s^-1 eV (times G in eV^-1 gives s^-1)."""
-    return 2.0 * np.pi / (_c.hbar / EV_J) * hopping_ev**2
+    return 2.0 * np.pi / (units.HBAR_J_S / EV_J) * hopping_ev**2
 
 
 def inelastic_rate_s(gaps_ev, frequencies_cm1, huang_rhys_factors, *, lambda_ev: float, temperature_k: float,
