@@ -360,3 +360,58 @@ def test_excluded_materials_are_absent():
     assert not present & excluded_blocks
     # metallocenes: no metal atom anywhere (the element check above allows only C, H, N, O, S)
     assert all(a.GetSymbol() in ALLOWED_ELEMENTS for row in MATERIALS for a in _mol(row).GetAtoms())
+
+
+def test_seed_row_whose_name_the_catalogue_gives_another_structure_is_left_out_not_replaced(sqlite_url):
+    # a catalogue seeded by an older olibra (here: Ambrettolide with the other double-bond geometry) must
+    # take the rest of the seed, keep its own material untouched and say which row it left out and why
+    from library.catalogue import curation
+    from library.catalogue.database import initialize
+    from library.catalogue.models import Material
+    from library.catalogue.seed import load_seed
+    from sqlalchemy import select
+
+    catalogue = initialize(sqlite_url)
+    with catalogue.transaction() as session:
+        curation.load_vocabulary(session)
+        draft = curation.draft_material("O=C1CCCCC/C=C/CCCCCCCCO1", name="Ambrettolide",
+                                        sources={"structure": "from memory", "preferred_name": "from memory"})
+        curation.add_material(session, draft, actor="test")
+    first = load_seed(catalogue)
+    assert len(first.kept_local) == 1 and "Ambrettolide" in first.kept_local[0]
+    assert "retire or rename" in first.kept_local[0]
+    assert first.count("added") == len(MATERIALS) - 1
+    with catalogue.reading() as session:
+        kept = session.scalar(select(Material).where(Material.preferred_name == "Ambrettolide"))
+        assert kept.smiles == "O=C1CCCCC/C=C/CCCCCCCCO1"  # the catalogue's own structure, unchanged
+    again = load_seed(catalogue)  # idempotent: the rest is present, the same row left out again
+    assert again.count("added") == 0 and len(again.kept_local) == 1
+    catalogue.dispose()
+
+
+def test_a_bad_seed_row_imports_nothing(sqlite_url, tmp_path):
+    from library.catalogue import curation
+    from library.catalogue.database import initialize
+    from library.catalogue.models import Material
+    from library.catalogue.seed import load_seed
+    from library.errors import OlibraError
+    from sqlalchemy import func, select
+
+    lines = MATERIALS_FILE.read_text(encoding="utf-8").splitlines()
+    broken = tmp_path / "materials.csv"
+    header = next(csv.reader([lines[0]]))
+    bad = dict.fromkeys(header, "")
+    bad.update(name="Not a molecule", smiles="C1CC(")
+    with broken.open("w", encoding="utf-8", newline="") as out:
+        writer = csv.DictWriter(out, header)
+        writer.writeheader()
+        writer.writerows(MATERIALS[:5])
+        writer.writerow(bad)
+    catalogue = initialize(sqlite_url)
+    with catalogue.transaction() as session:
+        curation.load_vocabulary(session)
+    with pytest.raises(OlibraError, match="bad row 6 .*bug in olibra's seed files"):
+        load_seed(catalogue, broken)
+    with catalogue.reading() as session:  # all or nothing: the five good rows were not stored either
+        assert session.scalar(select(func.count()).select_from(Material)) == 0
+    catalogue.dispose()

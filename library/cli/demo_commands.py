@@ -25,6 +25,8 @@ def cmd_demo(args) -> int:
         curation.load_vocabulary(session)
     report = load_seed(catalogue)
     print(f"seed catalogue: {report.count('added')} added, {report.count('present')} already present")
+    for line in report.kept_local:
+        print(f"  {line}")
     plan = computations.Plan(kinds=computations.KINDS, vibration_engine="mmff")
     stamps = computations.stamps(plan)
     materials = jobs.select_materials(catalogue, stamps, which="stale")
