@@ -70,6 +70,20 @@ def test_every_material_is_indexed_and_the_cache_is_reused_until_a_change(search
         curation.set_restricted(session, curation.find_material(session, "Anethole"), False)
 
 
+def test_new_tunnelling_settings_invalidate_the_cached_index(searchable, monkeypatch):
+    # the index reads tunnelling records too: a cache built under other tunnelling settings must not be reused
+    from library import computations
+    from library.vibration import tunnelling
+
+    catalogue, folder = searchable
+    first = catalogue_index.load_index(catalogue, cache_dir=folder / "cache-t")
+    assert catalogue_index.load_index(catalogue, cache_dir=folder / "cache-t").from_cache
+    monkeypatch.setitem(tunnelling.DEFAULTS, "lambda_ev", tunnelling.DEFAULTS["lambda_ev"] * 2)
+    computations.current_stamps.cache_clear()
+    changed = catalogue_index.load_index(catalogue, cache_dir=folder / "cache-t")
+    assert not changed.from_cache and changed.revision.tunnelling_stamp != first.revision.tunnelling_stamp
+
+
 def test_substitutes_rank_by_the_chosen_metric_and_report_every_metric(searchable, index):
     catalogue, _ = searchable
     outcome = substitutes.find_substitutes(catalogue, "Citral", metric="blend", weight=0.5, k=5, cat_index=index)

@@ -51,11 +51,13 @@ class IndexRevision:
     shape_stamp: str
     vibration_version: str
     vibration_stamp: str
+    tunnelling_stamp: str = "-"  # version and settings of the tunnelling records (an optional kind)
 
     @property
     def key(self) -> str:
-        """One string for cache files: r<revision>-<shape hash>-<vibration version>-<vibration hash>."""
-        return f"r{self.catalogue_revision}-{self.shape_stamp}-{self.vibration_version}-{self.vibration_stamp}"
+        """One string for cache files: r<revision>-<shape hash>-<vibration version>-<vibration hash>-<tunnelling>."""
+        return (f"r{self.catalogue_revision}-{self.shape_stamp}-{self.vibration_version}-{self.vibration_stamp}"
+                f"-{self.tunnelling_stamp}")
 
     def __str__(self) -> str:
         return self.key
@@ -89,6 +91,13 @@ def record_stamps(vibration_engine: str = DEFAULT_ENGINE) -> dict:
     return {s.kind: s for s in computations.stamps(computations.Plan(vibration_engine=vibration_engine))}
 
 
+def _stamp_digest(stamp) -> str:
+    """12 hex digits naming a stamp's engine version and settings together ('-' when there is none)."""
+    if stamp is None:
+        return "-"
+    return hashlib.sha256(f"{stamp.engine_version}|{stamp.parameter_hash}".encode()).hexdigest()[:12]
+
+
 def _cache_path(catalogue, engine: str, cache_dir: Path | None) -> Path:
     import platformdirs
 
@@ -120,7 +129,8 @@ def load_index(catalogue, *, vibration_engine: str = DEFAULT_ENGINE, cache_dir: 
     with _snapshot(catalogue) as session, session.begin():
         number = session.scalar(select(CatalogueState.revision).where(CatalogueState.id == 1))
         revision = IndexRevision(int(number or 0), stamps["shape"].parameter_hash[:12],
-                                 stamps["vibration"].engine_version, stamps["vibration"].parameter_hash[:12])
+                                 stamps["vibration"].engine_version, stamps["vibration"].parameter_hash[:12],
+                                 _stamp_digest(stamps.get("tunnelling")))
         path = _cache_path(catalogue, vibration_engine, cache_dir) if use_cache else None
         cached = SimilarityIndex.load(path, revision.key) if path is not None else None
         if cached is not None and cached.load_extra("materials") is not None:
