@@ -467,3 +467,25 @@ def test_substitutes_group_filters_own_family_and_ordering_column(reader):
     highlighted = re.findall(r'<th class="num ranked-by">([^<]+)</th>', page)
     assert highlighted == ["overlay"]
     assert '<span id="ordered-by">overlay</span>' in page
+
+
+def test_hit_lists_carry_the_restriction_entries_curators_recorded(catalogue, reader):
+    # an allergen to declare does not keep a material out of the list; its tag shows on the page, in the
+    # CSV and in the JSON (what the curator recorded, worded by library.catalogue.restrictions.tag)
+    from library.catalogue import restrictions
+
+    first = reader.get("/api/substitutes?material=Citral&k=4&metric=vibration").get_json()["candidates"][0]
+    assert first["regulatory"] == ""
+    with catalogue.transaction() as session:
+        material = curation.find_material(session, first["name"])
+        entry = restrictions.check_entry(kind="allergen", authority="EU 1223/2009", source="from memory")
+        restrictions.add_restriction(session, material, entry, actor="test")
+    expected = "declare allergen (EU 1223/2009)"
+    api = reader.get("/api/substitutes?material=Citral&k=4&metric=vibration").get_json()["candidates"]
+    assert api[0]["name"] == first["name"] and api[0]["regulatory"] == expected
+    assert all(c["regulatory"] == "" for c in api[1:])
+    lines = reader.get("/substitutes.csv?material=Citral&k=4&metric=vibration").text.splitlines()
+    table = list(csv.DictReader(io.StringIO("\n".join(lines[1:]))))
+    assert table[0]["regulatory"] == expected
+    page = reader.get("/substitutes?material=Citral&k=4&metric=vibration").text
+    assert f'<div class="sub regulatory" title="recorded by curators; not a regulatory database">{expected}</div>' in page

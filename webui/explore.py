@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 from flask import Response
 
 from library import functional_groups
-from library.catalogue import curation
+from library.catalogue import curation, restrictions
 from library.catalogue.transfer import spreadsheet_safe
 from library.errors import OlibraError
 from library.catalogue import observations
@@ -239,7 +239,13 @@ def preview_points(cat_index, material_id: int) -> str | None:
     return cache[material_id]
 
 
-def candidate_row(candidate) -> dict:
+def regulatory_tags(outcome) -> dict[int, str]:
+    """{material id: the restriction entries curators recorded, as tags} for an outcome's candidates."""
+    with web_state().catalogue.reading() as session:
+        return restrictions.tags_by_id(session, [c.material.id for c in outcome.candidates])
+
+
+def candidate_row(candidate, regulatory: dict[int, str] | None = None) -> dict:
     m = candidate.material
     row = {"rank": candidate.rank, "id": m.id, "name": m.name, "cas": m.cas_rn, "score": round(candidate.score, 4)}
     for metric in metrics.names():
@@ -247,16 +253,17 @@ def candidate_row(candidate) -> dict:
             row[metric] = round(candidate.scores[metric], 4)
             row[f"{metric}_rank"] = candidate.ranks.get(metric)
     row.update(odors=list(m.odors), molecular_weight=round(m.molecular_weight, 3), logp=round(m.logp, 3),
-               status=m.status, restricted=m.restricted, smiles=m.smiles,
-               functional_groups=list(functional_groups.groups_of(m.smiles)))
+               status=m.status, restricted=m.restricted, regulatory=(regulatory or {}).get(m.id, ""),
+               smiles=m.smiles, functional_groups=list(functional_groups.groups_of(m.smiles)))
     return row
 
 
 def outcome_json(outcome) -> dict:
     query = outcome.query
+    tags = regulatory_tags(outcome)
     return {"query": {"label": query.label, "material_id": query.material_id, "smiles": query.smiles},
             "metric": outcome.metric, "ordered_by": outcome.ordered_by, "blend_weight": outcome.weight,
-            "candidates": [candidate_row(c) for c in outcome.candidates],
+            "candidates": [candidate_row(c, tags) for c in outcome.candidates],
             "notes": outcome.notes, "caution": outcome.caution}
 
 

@@ -15,13 +15,13 @@ from webui.errors import user_message
 blueprint = Blueprint("substitutes", __name__)
 
 CSV_COLUMNS = ["rank", "id", "name", "cas"] + [c for m in metrics.names() for c in (m, f"{m}_rank")] + [
-    "odors", "molecular_weight", "logp", "status", "restricted", "smiles"]
+    "odors", "molecular_weight", "logp", "status", "restricted", "regulatory", "smiles"]
 
 
 @blueprint.get("/substitutes")
 def index():
     error = outcome = None
-    previews = {}
+    previews, regulatory = {}, {}
     try:
         asked = explore.substitute_request(request.args)
     except OlibraError as exc:
@@ -34,6 +34,7 @@ def index():
             else:
                 curve = fingerprint_curve(cat_index, query=outcome.query)
                 query_points = None if curve is None else charts.preview_points(*curve)
+            regulatory = explore.regulatory_tags(outcome)
             for c in outcome.candidates:
                 previews[c.material.id] = charts.preview_svg(
                     explore.preview_points(cat_index, c.material.id), query_points,
@@ -42,7 +43,7 @@ def index():
             error = user_message(exc)
     status = 400 if error else 200
     return render_template("substitutes/index.html", asked=asked, outcome=outcome, error=error,
-                           previews=previews, metrics=metrics.metrics(indexed=True), score_columns=metrics.names(),
+                           previews=previews, regulatory=regulatory, metrics=metrics.metrics(indexed=True), score_columns=metrics.names(),
                            group_names=list(functional_groups.VOCABULARY), base_presets=functional_groups.BASE_PRESETS,
                            args=request.args), status
 
@@ -50,7 +51,8 @@ def index():
 @blueprint.get("/substitutes.csv")
 def export():
     outcome, _ = explore.find_substitutes(_required(explore.substitute_request(request.args)))
-    return explore.csv_response([explore.candidate_row(c) for c in outcome.candidates], CSV_COLUMNS,
+    tags = explore.regulatory_tags(outcome)
+    return explore.csv_response([explore.candidate_row(c, tags) for c in outcome.candidates], CSV_COLUMNS,
                                 "substitutes.csv", caution=outcome.caution)
 
 
