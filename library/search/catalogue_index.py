@@ -41,6 +41,7 @@ class MaterialInfo:
     molecular_weight: float
     logp: float
     demo: bool = False  # every odor descriptor of the material is demo data (an invented entry)
+    skeleton: str | None = None  # first InChIKey block: connectivity without stereo or isotopes
 
 
 @dataclass(frozen=True)
@@ -185,7 +186,8 @@ def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int
     infos = {m.id: MaterialInfo(m.id, m.preferred_name, m.smiles, m.cas_rn,
                                 tuple(sorted(o.descriptor.term for o in m.odors)), m.status, m.restricted,
                                 m.average_mass_g_per_mol, logp(m.smiles),
-                                bool(m.odors) and all(o.source_kind == "demo" for o in m.odors))
+                                bool(m.odors) and all(o.source_kind == "demo" for o in m.odors),
+                                (m.inchikey or "").split("-")[0] or None)
              for m in materials}
     kinds = needed_kinds()
     state = {kind: records.record_state(session, stamps[kind], include_retired=True) for kind in kinds}

@@ -75,8 +75,11 @@ def own_family_ids(query: QueryMaterial, cat_index: CatalogueIndex) -> set[int]:
     """Catalogue materials of the query's own family: its stereoisomers and isotopologues (same first
     InChIKey block; a mixture drawn with unassigned stereo shares it with its isomer components)."""
     block = skeleton(query.smiles)
+    if block is None:
+        return set()
+    # the stored InChIKey's first block (an index cached before it was kept falls back to the SMILES)
     return {i for i, info in cat_index.materials.items()
-            if i != query.material_id and block is not None and skeleton(info.smiles) == block}
+            if i != query.material_id and (info.skeleton or skeleton(info.smiles)) == block}
 
 
 def group_excluded_ids(cat_index: CatalogueIndex, *, with_groups=(), without_groups=()) -> set[int]:
