@@ -13,11 +13,8 @@ from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
 from library.search import metrics
-from library.search.disagreement_policy import describe_thresholds, find_disagreement_rows, resolved_thresholds
 from library.search.disagreements import DIRECTIONS, sides_with_tally, tally_lines
-from library.search.evidence import run_scorecard
 from library.search.pairs import compare
-from library.search.spectra import material_spectrum
 from library.search.substitutes import (
     CAUTION,
     DEFAULT_RERANK_DEPTH,
@@ -200,6 +197,8 @@ def cmd_compare(args) -> int:
 
 
 def cmd_disagreements(args) -> int:
+    from library.search.disagreement_policy import describe_thresholds, find_disagreement_rows, resolved_thresholds
+
     catalogue = open_catalogue(args)
     observation = None if args.observed == "none" else args.observed
     from library.search.catalogue_index import load_index
@@ -274,6 +273,7 @@ def cmd_observations(args) -> int:
 
 def cmd_scorecard(args) -> int:
     from library.search import scorecard  # on use: it imports scipy.stats
+    from library.search.evidence import run_scorecard
 
     catalogue = open_catalogue(args)
     report, label, notes = run_scorecard(
@@ -331,6 +331,7 @@ def cmd_groups(args) -> int:
 
 
 def cmd_spectrum(args) -> int:
+    from library.search.spectra import material_spectrum
     from library.vibration.plot import draw_spectrum
 
     catalogue = open_catalogue(args)
