@@ -821,3 +821,47 @@ def test_the_change_history_filters_by_user_date_and_material(client, catalogue)
     assert bad.status_code == 400 and "YYYY-MM-DD" in bad.text
     unknown = client.get("/history", query_string={"material": "no such thing"})
     assert unknown.status_code == 400 and "no material matches" in unknown.text
+
+
+def test_curators_record_and_remove_regulatory_entries_in_the_web(client, catalogue):
+    from library.catalogue.models import Restriction
+
+    sign_in(client, "cora")
+    eugenol = material_id(catalogue, "Eugenol")
+    page = client.get(f"/materials/{eugenol}/restrictions")
+    assert page.status_code == 200 and "not a regulatory database" in page.text
+    token = re.search(r'name="csrf_token" type="hidden" value="([^"]+)"', page.text).group(1)
+    # a bad level is refused with the core's message and stores nothing
+    refused = client.post(f"/materials/{eugenol}/restrictions", data={
+        "csrf_token": token, "kind": "allergen", "authority": "EU 1223/2009", "max_percent": "lots"})
+    assert refused.status_code == 400 and "is not a number" in html.unescape(refused.text)
+    added = client.post(f"/materials/{eugenol}/restrictions", data={
+        "csrf_token": token, "kind": "allergen", "authority": "EU 1223/2009", "source": "from memory"})
+    assert added.status_code == 302
+    with catalogue.reading() as session:
+        rows = list(session.scalars(select(Restriction).where(Restriction.material_id == eugenol)))
+        assert [(r.kind, r.authority) for r in rows] == [("allergen", "EU 1223/2009")]
+        assert not session.get(Material, eugenol).restricted  # an allergen to declare does not block
+        audited = session.scalar(select(AuditEntry).where(AuditEntry.entity_id == eugenol,
+                                                          AuditEntry.field == "restriction"))
+        assert audited.actor == "cora" and audited.new_value == "declare allergen (EU 1223/2009)"
+    shown = client.get(f"/materials/{eugenol}").text
+    assert "declare allergen (EU 1223/2009)" in re.search(r'id="regulatory-entries">(.*?)</dd>', shown, re.S).group(1)
+    client.post(f"/materials/{eugenol}/restrictions", data={
+        "csrf_token": token, "kind": "prohibited", "authority": "a standard", "source": "from memory"})
+    with catalogue.reading() as session:
+        assert session.get(Material, eugenol).restricted  # a prohibition keeps it out of substitute lists
+        prohibited = session.scalar(select(Restriction.id).where(Restriction.material_id == eugenol,
+                                                                 Restriction.kind == "prohibited"))
+    removed = client.post(f"/materials/{eugenol}/restrictions/{prohibited}/remove", data={"csrf_token": token})
+    assert removed.status_code == 302
+    with catalogue.reading() as session:
+        assert not session.get(Material, eugenol).restricted
+        assert session.scalar(select(func.count()).select_from(Restriction)
+                              .where(Restriction.material_id == eugenol)) == 1
+    # another material's entry id through this material's address is refused, nothing removed
+    other = material_id(catalogue, "Octanal")
+    client.post(f"/materials/{other}/restrictions/{prohibited - 1}/remove", data={"csrf_token": token})
+    with catalogue.reading() as session:
+        assert session.scalar(select(func.count()).select_from(Restriction)
+                              .where(Restriction.material_id == eugenol)) == 1

@@ -6,7 +6,7 @@ from flask import Blueprint, Response, abort, current_app, render_template, requ
 from sqlalchemy.orm import selectinload
 
 from library import depiction, functional_groups
-from library.catalogue import observations
+from library.catalogue import observations, restrictions
 from library.catalogue.models import Material, MaterialOdor
 from webui import db_session, queries
 
@@ -45,7 +45,8 @@ def material(material_id: int):
         missing_kinds=queries.missing_kinds(records), shape=queries.shape_summary(records),
         history=queries.audit_history(session, found.id), flags=queries.pair_flags(session, found.id),
         job=queries.latest_job_for(session, found.id), flag_kinds=observations.FLAG_KINDS,
-        summary_rows=queries.summary_rows, provenance_text=queries.provenance_text)
+        summary_rows=queries.summary_rows, provenance_text=queries.provenance_text,
+        regulatory_tag=restrictions.tag)
 
 
 @blueprint.get("/materials/<int:material_id>/depiction.svg")

@@ -7,13 +7,14 @@ from pathlib import Path
 
 from flask import Blueprint, abort, flash, redirect, render_template, request, url_for
 from flask_login import current_user
+from sqlalchemy import select
 from sqlalchemy.orm import selectinload
 from werkzeug.utils import secure_filename
 
-from library.catalogue import curation, transfer
+from library.catalogue import curation, restrictions, transfer
 from library.catalogue.curation import FieldErrors
 from library.catalogue.edits import MaterialChanges, apply_changes, odor_text
-from library.catalogue.models import Material, MaterialOdor
+from library.catalogue.models import Material, MaterialOdor, Restriction
 from library.errors import OlibraError
 from webui import begin_write, db_session, jobs, queries, write_transaction
 from webui.errors import user_message
@@ -21,6 +22,8 @@ from webui.forms import (
     EditMaterialForm,
     ImportForm,
     MaterialForm,
+    RemoveForm,
+    RestrictionForm,
     VocabularyForm,
     split_lines,
 )
@@ -160,6 +163,59 @@ def edit_material(material_id: int):
             return redirect(url_for("browse.material", material_id=material_id))
         material = _material_for_edit(material_id)  # the values as stored, after the rollback
     return render_template("curation/edit.html", form=form, material=material), 400
+
+
+@blueprint.route("/materials/<int:material_id>/restrictions", methods=["GET", "POST"])
+@curators_only
+def material_restrictions(material_id: int):
+    """The material's regulatory entries, a form to record another and a button to remove each."""
+    material = _material_for_edit(material_id)
+    form = RestrictionForm()
+    status = 200
+    if request.method == "POST":
+        status = 400
+        if form_checked(form):
+            try:
+                entry = restrictions.check_entry(
+                    kind=form.kind.data, authority=form.authority.data, reference=form.reference.data,
+                    max_percent=form.max_percent.data, category=form.category.data, date=form.date.data,
+                    source=form.source.data)
+                with write_transaction() as session:
+                    stored = session.get(Material, material_id, with_for_update=True)
+                    added = restrictions.add_restriction(session, stored, entry, actor=current_user.username)
+                    label = restrictions.tag(added)
+            except OlibraError as exc:
+                form.form_errors.append(user_message(exc))
+            else:
+                flash(f"Recorded: {label}.", "success")
+                return redirect(url_for("curation.material_restrictions", material_id=material_id))
+        material = _material_for_edit(material_id)
+    return render_template("curation/restrictions.html", form=form, remove=RemoveForm(), material=material,
+                           entries=_entries(material_id), describe=restrictions.describe), status
+
+
+@blueprint.post("/materials/<int:material_id>/restrictions/<int:restriction_id>/remove")
+@curators_only
+def remove_material_restriction(material_id: int, restriction_id: int):
+    if not RemoveForm().validate_on_submit():
+        abort(400, description="The form's security token is missing or expired; reload the page and try again.")
+    try:
+        with write_transaction() as session:
+            row = session.get(Restriction, restriction_id)
+            if row is None or row.material_id != material_id:
+                raise curation.CurationError(f"material #{material_id} has no restriction entry #{restriction_id}; "
+                                             "it may have been removed already")
+            _, label = restrictions.remove_restriction(session, restriction_id, actor=current_user.username)
+    except OlibraError as exc:
+        flash(user_message(exc), "error")
+    else:
+        flash(f"Removed: {label}.", "success")
+    return redirect(url_for("curation.material_restrictions", material_id=material_id))
+
+
+def _entries(material_id: int) -> list[Restriction]:
+    return list(db_session().scalars(select(Restriction).where(Restriction.material_id == material_id)
+                                     .order_by(Restriction.id)))
 
 
 def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source: str | None,

@@ -10,7 +10,7 @@ from flask_wtf.file import FileField, FileRequired
 from wtforms import BooleanField, HiddenField, SelectField, StringField, TextAreaField
 from wtforms.validators import DataRequired, Length, Optional
 
-from library.catalogue.models import MATERIAL_STATUSES
+from library.catalogue.models import MATERIAL_STATUSES, RESTRICTION_KINDS
 from library.vibration import engines
 
 PROVENANCE_HELP = ("from memory, demo, measured: <how>, computed: <how>, "
@@ -57,6 +57,24 @@ class EditMaterialForm(FlaskForm):
     status = SelectField("Status", choices=list(MATERIAL_STATUSES))
     restricted = BooleanField("Restricted (kept out of substitute lists)")
     loaded_at = HiddenField()
+
+
+class RestrictionForm(FlaskForm):
+    kind = SelectField("Kind", choices=list(RESTRICTION_KINDS),
+                       description="prohibited and restricted keep the material out of substitute lists.")
+    authority = StringField("Authority or standard", validators=[Length(max=200)],
+                            description="As text, e.g. IFRA Standards or EU Regulation (EC) No 1223/2009.")
+    max_percent = StringField("Maximum level (%)", validators=[Optional(), Length(max=20)],
+                              description="For restricted or allergen entries, e.g. 0.01.")
+    category = StringField("Product category", validators=[Optional(), Length(max=200)])
+    reference = StringField("Reference", validators=[Optional(), Length(max=500)])
+    date = StringField("Date", validators=[Optional(), Length(max=20)], description="YYYY-MM-DD")
+    source = StringField("Source", default="from memory", validators=[Optional(), Length(max=500)],
+                         description=PROVENANCE_HELP)
+
+
+class RemoveForm(FlaskForm):
+    """A button that posts with the CSRF token and nothing else."""
 
 
 class ImportForm(FlaskForm):
