@@ -182,6 +182,8 @@ def material_restrictions(material_id: int):
                     source=form.source.data)
                 with write_transaction() as session:
                     stored = session.get(Material, material_id, with_for_update=True)
+                    if stored is None:  # removed since the page was read
+                        abort(404, description=f"There is no material #{material_id} any more.")
                     added = restrictions.add_restriction(session, stored, entry, actor=current_user.username)
                     label = restrictions.tag(added)
             except OlibraError as exc:
