@@ -39,9 +39,10 @@ def load_seed(catalogue, materials_file=MATERIALS_FILE) -> SeedReport:
     with catalogue.reading() as session:
         for outcome in report.rejected:
             fields = by_row[outcome.row].fields
-            holder = session.scalar(select(Material).where(or_(
-                func.lower(Material.preferred_name) == (fields.get("name") or "").strip().lower(),
-                Material.cas_rn == ((fields.get("cas") or "").strip() or None))).limit(1))
+            same = [func.lower(Material.preferred_name) == (fields.get("name") or "").strip().lower()]
+            if (fields.get("cas") or "").strip():  # (a missing CAS RN must not match every material without one)
+                same.append(Material.cas_rn == fields["cas"].strip())
+            holder = session.scalar(select(Material).where(or_(*same)).limit(1))
             if holder is None:
                 bugs.append(outcome)
             else:
