@@ -7,7 +7,6 @@ from pathlib import Path
 
 from flask import Blueprint, abort, flash, redirect, render_template, request, url_for
 from flask_login import current_user
-from sqlalchemy import select
 from sqlalchemy.orm import selectinload
 from werkzeug.utils import secure_filename
 
@@ -193,7 +192,7 @@ def material_restrictions(material_id: int):
                 return redirect(url_for("curation.material_restrictions", material_id=material_id))
         material = _material_for_edit(material_id)
     return render_template("curation/restrictions.html", form=form, remove=RemoveForm(), material=material,
-                           entries=_entries(material_id), describe=restrictions.describe), status
+                           entries=material.restrictions, describe=restrictions.describe), status
 
 
 @blueprint.post("/materials/<int:material_id>/restrictions/<int:restriction_id>/remove")
@@ -213,11 +212,6 @@ def remove_material_restriction(material_id: int, restriction_id: int):
     else:
         flash(f"Removed: {label}.", "success")
     return redirect(url_for("curation.material_restrictions", material_id=material_id))
-
-
-def _entries(material_id: int) -> list[Restriction]:
-    return list(db_session().scalars(select(Restriction).where(Restriction.material_id == material_id)
-                                     .order_by(Restriction.id)))
 
 
 def run_import(filename: str, data: bytes, *, keep_good: bool, structure_source: str | None,
