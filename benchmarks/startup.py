@@ -37,10 +37,9 @@ def olibra_command() -> list[str]:
 
 
 def default_folder() -> Path:
-    import platformdirs
+    from library import user_cache
 
-    root = os.environ.get("OLIBRA_CACHE") or platformdirs.user_cache_dir("olibra", appauthor=False)
-    return Path(root) / "bench-startup"
+    return user_cache.folder() / "bench-startup"
 
 
 def _run(argv: list[str], *, timeout_s: float = 600.0) -> float:

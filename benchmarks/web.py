@@ -93,10 +93,9 @@ def enumerated_materials() -> list[tuple[str, str, str]]:
 
 
 def default_folder() -> Path:
-    import platformdirs
+    from library import user_cache
 
-    root = os.environ.get("OLIBRA_CACHE") or platformdirs.user_cache_dir("olibra", appauthor=False)
-    return Path(root) / "bench-web"
+    return user_cache.folder() / "bench-web"
 
 
 def build_catalogue(folder: Path | None = None, *, target: int = TARGET_MATERIALS, processes: int | None = None,

@@ -30,10 +30,9 @@ SEED_FILE = MATERIALS_FILE
 
 
 def default_folder() -> Path:
-    import platformdirs
+    from library import user_cache
 
-    root = os.environ.get("OLIBRA_CACHE") or platformdirs.user_cache_dir("olibra", appauthor=False)
-    return Path(root) / "bench-load"
+    return user_cache.folder() / "bench-load"
 
 
 def build_catalogue(out=sys.stdout) -> str:

@@ -10,82 +10,13 @@ processes, so they take and return only plain, picklable values.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from functools import lru_cache, partial
+from functools import partial
 
 import numpy as np
 
-from library.catalogue.records import EngineStamp
-
-KINDS = ("shape", "vibration", "tunnelling")
-# What a shape record holds besides the descriptors: the ensemble itself, so
-# that overlays need no new embedding.
-SHAPE_RECORD_LAYOUT = "descriptors+conformers+conformer moments and shape values+mirror flags/4"
-
-
-@dataclass(frozen=True)
-class Plan:
-    """Which records to compute, with which engine and ensemble settings."""
-
-    kinds: tuple[str, ...] = KINDS
-    vibration_engine: str = "mmff"
-    ensemble_knobs: dict = field(default_factory=dict)
-
-    def __post_init__(self):
-        unknown = [k for k in self.kinds if k not in KINDS]
-        if unknown or not self.kinds:
-            raise ValueError(f"unknown record kind(s) {unknown}; choose from {', '.join(KINDS)}")
-        from library.vibration import engines
-
-        engines.get(self.vibration_engine)  # refuses an unknown engine, naming the choices
-
-
-def stamps(plan: Plan) -> list[EngineStamp]:
-    """The engine name, version and parameters each planned record must carry."""
-    from library import shape
-
-    out = []
-    if "shape" in plan.kinds:
-        parameters = dict(shape.parameters(**plan.ensemble_knobs), stored=SHAPE_RECORD_LAYOUT)
-        out.append(EngineStamp("shape", shape.ENGINE_NAME, shape.ENGINE_VERSION, parameters))
-    if "vibration" in plan.kinds:
-        from library.vibration import engines
-        from library.vibration import spectrum as spectrum_module
-
-        module = engines.engine_module(plan.vibration_engine)
-        out.append(EngineStamp("vibration", module.ENGINE_NAME, module.ENGINE_VERSION,
-                               spectrum_module.record_parameters(plan.vibration_engine,
-                                                                 **plan.ensemble_knobs)))
-    if "tunnelling" in plan.kinds:
-        from library.vibration import engines
-        from library.vibration import spectrum as spectrum_module
-        from library.vibration import tunnelling
-
-        # same engine name as the vibration record it derives from; its own kind, version and settings
-        module = engines.engine_module(plan.vibration_engine)
-        out.append(EngineStamp("tunnelling", module.ENGINE_NAME,
-                               f"{module.ENGINE_VERSION}+tunnelling-{tunnelling.ENGINE_VERSION}",
-                               {"spectrum": spectrum_module.record_parameters(plan.vibration_engine,
-                                                                              **plan.ensemble_knobs),
-                                "tunnelling": tunnelling.parameters()}))
-    return out
-
-
-@lru_cache(maxsize=1)
-def current_stamps() -> dict[tuple[str, str], EngineStamp]:
-    """The stamp each (kind, engine name) record must carry now; engines not installed are left out."""
-    from library.vibration import engines
-
-    out: dict[tuple[str, str], EngineStamp] = {}
-    plans = [Plan(kinds=("shape",))] + [Plan(kinds=("vibration", "tunnelling"), vibration_engine=e) for e in engines.keys()]
-    for plan in plans:
-        try:
-            found = stamps(plan)
-        except (ImportError, ValueError):
-            continue  # that engine is not available in this installation
-        for stamp in found:
-            out[(stamp.kind, stamp.engine_name)] = stamp
-    return out
+# Plans and their stamps live in library.stamps (light to import, so that read-only commands need not
+# load the engines); they are named here too, beside the computations they describe.
+from library.stamps import KINDS, Plan, current_stamps, stamps  # noqa: F401
 
 
 def compute_material(plan: Plan, smiles: str) -> dict[str, tuple[dict, dict]]:

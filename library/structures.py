@@ -15,7 +15,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 
 from rdkit import Chem, RDLogger, rdBase
-from rdkit.Chem import Descriptors, rdDepictor, rdMolDescriptors
+from rdkit.Chem import rdMolDescriptors
 from rdkit.Chem.MolStandardize import rdMolStandardize
 
 from library.errors import OlibraError
@@ -291,6 +291,8 @@ def standardize(text: str | Chem.Mol, *, input_format: str | None = None,
         if not inchi:
             raise StructureError(f"InChI could not be generated{_rdkit_detail(messages)}")
         inchikey = Chem.InchiToInchiKey(inchi)
+    from rdkit.Chem import rdDepictor  # loads NumPy: imported when a structure is standardized, not at start-up
+
     depiction = Chem.Mol(mol)
     rdDepictor.Compute2DCoords(depiction)
     return StandardStructure(
@@ -299,8 +301,8 @@ def standardize(text: str | Chem.Mol, *, input_format: str | None = None,
         inchi=inchi,
         inchikey=inchikey,
         formula=rdMolDescriptors.CalcMolFormula(mol, True, True),
-        average_mass=Descriptors.MolWt(mol),
-        monoisotopic_mass=Descriptors.ExactMolWt(mol),
+        average_mass=rdMolDescriptors._CalcMolWt(mol),  # what Descriptors.MolWt calls, without its import cost
+        monoisotopic_mass=rdMolDescriptors.CalcExactMolWt(mol),
         stereo_status=stereo_status,
         stereo_element_count=len(stereo),
         unassigned_stereo_count=unassigned,

@@ -2,6 +2,7 @@
 
 import argparse
 import json
+import os
 import subprocess
 import sys
 
@@ -117,12 +118,14 @@ HEAVY_MODULES = {"rdkit", "numpy", "scipy", "sklearn", "sqlalchemy", "alembic", 
                  "pandas", "webui", "library.search", "library.catalogue.database", "library.vibration"}
 
 
-def modules_loaded_by(argv: list[str]) -> set[str]:
+def modules_loaded_by(argv: list[str], *, cache_folder=None) -> set[str]:
     """The modules loaded after `olibra ARGV` ran in a fresh interpreter (help output and exit included)."""
+    environment = dict(os.environ, **({"OLIBRA_CACHE": str(cache_folder)} if cache_folder else {}))
     code = ("import json, sys\nfrom library.cli import main\n"
             "try:\n    main(sys.argv[1:])\nexcept SystemExit:\n    pass\n"
             "print(json.dumps(sorted(sys.modules)), file=sys.stderr)\n")
-    result = subprocess.run([sys.executable, "-c", code, *argv], capture_output=True, text=True, timeout=120)
+    result = subprocess.run([sys.executable, "-c", code, *argv], capture_output=True, text=True, timeout=120,
+                            env=environment)
     return set(json.loads(result.stderr.strip().splitlines()[-1]))
 
 
@@ -132,13 +135,18 @@ def test_help_loads_no_heavy_library():
     assert not loaded & HEAVY_MODULES  # a submodule loads its package, so package names suffice
 
 
-def test_show_loads_no_search_web_or_plotting_library(olibra):
+def test_show_loads_no_search_web_or_plotting_library(olibra, tmp_path):
     olibra("add", "CC(C)=CCCC(C)(O)C=C", "--name", "Linalool")
-    loaded = modules_loaded_by(["--db", olibra.url, "show", "Linalool"])
-    assert "library.catalogue.database" in loaded  # it did open the catalogue
+    first = modules_loaded_by(["--db", olibra.url, "show", "Linalool"], cache_folder=tmp_path / "cache")
+    assert "library.catalogue.database" in first  # it did open the catalogue
     slow = {"sklearn", "flask", "matplotlib", "tblite", "pandas", "webui", "library.search", "scipy.stats",
             "scipy.signal", "scipy.optimize"}
-    assert not loaded & slow
+    assert not first & slow
+    assert list((tmp_path / "cache").glob("stamps-*.json"))  # the first run computed the stamps and kept them
+    # later runs read the stamps back, so neither NumPy nor an engine is loaded to show a material
+    again = modules_loaded_by(["--db", olibra.url, "show", "Linalool"], cache_folder=tmp_path / "cache")
+    assert "library.catalogue.database" in again
+    assert not again & (slow | {"numpy", "scipy", "library.shape", "library.conformers", "library.vibration"})
 
 
 def test_every_command_is_declared_with_its_help_and_registered():

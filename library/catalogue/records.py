@@ -11,12 +11,15 @@ from __future__ import annotations
 import hashlib
 import json
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-import numpy as np
 from sqlalchemy import delete, select
 from sqlalchemy.orm import Session, selectinload
 
 from library.catalogue.models import ComputedArray, ComputedRecord, Material
+
+if TYPE_CHECKING:
+    import numpy as np
 
 ARRAY_DTYPE = "<f4"
 
@@ -53,11 +56,15 @@ class LoadedRecord:
 
 
 def encode_array(values) -> tuple[str, bytes]:
+    import numpy as np  # here, not at module level: reading a catalogue without its arrays needs no NumPy
+
     array = np.ascontiguousarray(np.asarray(values, dtype=ARRAY_DTYPE))
     return ",".join(str(n) for n in array.shape), array.tobytes()
 
 
 def decode_array(shape: str, data: bytes, dtype: str = ARRAY_DTYPE) -> np.ndarray:
+    import numpy as np
+
     dims = tuple(int(n) for n in shape.split(",") if n != "")
     return np.frombuffer(data, dtype=dtype).reshape(dims)
 

@@ -9,7 +9,7 @@ from pathlib import Path
 from sqlalchemy import func, select
 from sqlalchemy.orm import selectinload
 
-from library import computations, functional_groups
+from library import functional_groups
 from library.catalogue import curation, records, restrictions, transfer
 from library.catalogue.database import Catalogue, describe_url, initialize, resolve_url
 from library.catalogue.models import (
@@ -22,6 +22,7 @@ from library.catalogue.models import (
 )
 from library.cli.output import FORMATS, emit, progress_bar
 from library.errors import OlibraError
+from library.stamps import current_stamps
 
 PROGRESS_MIN_ROWS = 20
 
@@ -92,7 +93,7 @@ def cmd_show(args) -> int:
             lines.append(f"  source of {p.field:<14}{_provenance_text(p.kind, p.reference)}")
         if m.notes:
             lines.append(f"  notes           {m.notes}")
-        stamps = computations.current_stamps()
+        stamps = current_stamps()
         for record in session.scalars(select(ComputedRecord).where(ComputedRecord.material_id == m.id)
                                       .order_by(ComputedRecord.kind, ComputedRecord.engine_name)):
             stamp = stamps.get((record.kind, record.engine_name))

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import os
 from dataclasses import asdict, dataclass
 from pathlib import Path
 
@@ -100,9 +99,9 @@ def _stamp_digest(stamp) -> str:
 
 
 def _cache_path(catalogue, engine: str, cache_dir: Path | None) -> Path:
-    import platformdirs
+    from library import user_cache
 
-    folder = cache_dir or Path(os.environ.get("OLIBRA_CACHE") or platformdirs.user_cache_dir("olibra", appauthor=False))
+    folder = cache_dir or user_cache.folder()
     folder.mkdir(parents=True, exist_ok=True)
     key = hashlib.sha256(str(catalogue.engine.url).encode()).hexdigest()[:16]
     return folder / f"index-{key}-{engine}.npz"
