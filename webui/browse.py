@@ -8,7 +8,7 @@ from sqlalchemy.orm import selectinload
 from library import depiction, functional_groups
 from library.catalogue import observations, restrictions
 from library.catalogue.models import Material, MaterialOdor
-from webui import db_session, queries
+from webui import db_session, queries, receptor_views
 
 blueprint = Blueprint("browse", __name__)
 
@@ -46,7 +46,8 @@ def material(material_id: int):
         history=queries.audit_history(session, found.id), flags=queries.pair_flags(session, found.id),
         job=queries.latest_job_for(session, found.id), flag_kinds=observations.FLAG_KINDS,
         summary_rows=queries.summary_rows, provenance_text=queries.provenance_text,
-        regulatory_tag=restrictions.tag)
+        regulatory_tag=restrictions.tag,
+        activation=receptor_views.activation_view([found.id], request.args.get("panel")))
 
 
 @blueprint.get("/materials/<int:material_id>/depiction.svg")

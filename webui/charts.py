@@ -164,6 +164,67 @@ def mirrored_spectra_svg(profile_a, profile_b, bands, *, width: int = 900, heigh
 PREVIEW_SIZE = (180, 44)
 
 
+TUNNELLING_DECADES = 8  # the rates span many orders of magnitude (soft modes couple as 1/omega^3)
+
+
+def tunnelling_svg(profiles, *, width: int = 760, height: int = 240) -> Markup:
+    """One or two materials' tunnelling spectra (inelastic rate against receptor gap) on a log scale
+    of TUNNELLING_DECADES decades below the largest rate, with the panel's receptors marked; hovering
+    a receptor gives its figures. `profiles` are ActivationProfile over the same panel."""
+    left, right, top, bottom = 44, 20, 26, 44
+    plot_w, plot_h = width - left - right, height - top - bottom
+    base = top + plot_h
+    grid = np.asarray(profiles[0].grid_ev, float)
+    low, high = float(grid[0]), float(grid[-1])
+    ceiling = float(np.log10(max(float(np.max(p.rate_s, initial=0.0)) for p in profiles) or 1.0))
+
+    def x_of(gap_ev: float) -> float:
+        return left + (float(gap_ev) - low) / ((high - low) or 1.0) * plot_w
+
+    def y_of(rate_s):
+        decades = np.log10(np.maximum(np.asarray(rate_s, float), 1e-300)) - ceiling
+        return base - np.clip(1.0 + decades / TUNNELLING_DECADES, 0.0, 1.0) * plot_h
+
+    names = " and ".join(p.name for p in profiles)
+    parts = [f'<svg class="chart tunnelling" viewBox="0 0 {width} {height}" width="{width}" height="{height}" '
+             f'role="img" aria-label="{escape(names)}: tunnelling spectrum with the receptors of panel '
+             f'{escape(profiles[0].panel.name)}">',
+             f'<title>{escape(names)}: inelastic tunnelling rate against receptor gap, log scale; panel '
+             f'{escape(profiles[0].panel.name)}</title>']
+    superscripts = str.maketrans("0123456789", "⁰¹²³⁴⁵⁶⁷⁸⁹")
+    for decade in range(TUNNELLING_DECADES + 1):
+        y = top + decade / TUNNELLING_DECADES * plot_h
+        label = "1" if decade == 0 else f"10⁻{str(decade).translate(superscripts)}"
+        parts.append(f'<line class="gridline" x1="{left}" y1="{y:.1f}" x2="{left + plot_w}" y2="{y:.1f}"/>'
+                     f'<text class="tick" x="{left - 4}" y="{y + 4:.1f}" text-anchor="end">{label}</text>')
+    for profile, css in zip(profiles, ("curve-a", "curve-b")):
+        g, rate = _reduce(profile.grid_ev, profile.rate_s, 400)
+        parts.append(f'<polyline class="curve {css}" points="{_points([x_of(v) for v in g], y_of(rate))}"/>')
+    parts.append(f'<line class="axis" x1="{left}" y1="{base}" x2="{left + plot_w}" y2="{base}"/>')
+    parts.append(f'<line class="axis" x1="{left}" y1="{top}" x2="{left}" y2="{base}"/>')
+    for tick in np.arange(0.0, high + 1e-9, 0.1):
+        x = x_of(tick)
+        parts.append(f'<line class="axis" x1="{x:.1f}" y1="{base}" x2="{x:.1f}" y2="{base + 4}"/>'
+                     f'<text class="tick" x="{x:.1f}" y="{base + 16}" text-anchor="middle">{tick:.1f}</text>')
+    parts.append(f'<text class="axis-label" x="{left + plot_w / 2}" y="{base + 32}" text-anchor="middle">'
+                 'receptor gap / eV</text>')
+    parts.append(f'<text class="axis-label" x="12" y="{top + plot_h / 2}" text-anchor="middle" '
+                 f'transform="rotate(-90 12 {top + plot_h / 2})">rate / largest rate (log)</text>')
+    for i, row in enumerate(profiles[0].rows):
+        x = x_of(row["gap_ev"])
+        figures = "; ".join(f"{p.name} {p.rows[i]['rate_s']:.3g} s⁻¹" for p in profiles)
+        title = escape(f"receptor at {row['gap_ev']:.3f} eV (lambda {row['lambda_ev']:.3f} eV, responds to modes "
+                       f"near {row['mode_cm1']:.0f} cm⁻¹): {figures}")
+        parts.append(f'<g class="band receptor"><title>{title}</title>'
+                     f'<line class="band-line" x1="{x:.1f}" y1="{top}" x2="{x:.1f}" y2="{base}"/>')
+        for p, css in zip(profiles, ("dot-a", "dot-b")):
+            y = float(y_of(p.rows[i]["rate_s"]))
+            parts.append(f'<circle class="band-dot {css}" cx="{x:.1f}" cy="{y:.1f}" r="4"/>')
+        parts.append("</g>")
+    parts.append("</svg>")
+    return Markup("".join(parts))
+
+
 def preview_points(grid, curve) -> str:
     """Polyline points of a spectrum preview (for `preview_svg`; cheap to keep per material)."""
     width, height = PREVIEW_SIZE

@@ -9,7 +9,7 @@ from flask import Blueprint, render_template, request
 from library.errors import OlibraError
 from library.search import metrics as metric_registry
 from library.search.spectra import spectrum_profile
-from webui import charts, explore, web_state
+from webui import charts, explore, receptor_views, web_state
 from webui.errors import user_message
 
 blueprint = Blueprint("compare", __name__)
@@ -17,7 +17,7 @@ blueprint = Blueprint("compare", __name__)
 
 @blueprint.get("/compare")
 def index():
-    error = result = chart = None
+    error = result = chart = activation = None
     a, b = request.args.get("a", ""), request.args.get("b", "")
     if a.strip() or b.strip():
         try:
@@ -27,9 +27,11 @@ def index():
             profile_a = spectrum_profile(catalogue, str(result.a.id), vibration_engine=engine)
             profile_b = spectrum_profile(catalogue, str(result.b.id), vibration_engine=engine)
             chart = charts.mirrored_spectra_svg(profile_a, profile_b, result.explanation["bands"])
+            activation = receptor_views.activation_view([result.a.id, result.b.id], request.args.get("panel"))
         except OlibraError as exc:
             error, result = user_message(exc), None
     return render_template("compare/index.html", a=a, b=b, result=result, chart=chart, error=error,
+                           activation=activation,
                            metrics=metric_registry.metrics(),
                            weight=request.args.get("weight", "0.5")), 400 if error else 200
 

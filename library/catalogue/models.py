@@ -372,3 +372,16 @@ class CalibratedMetric(Base):
     observed_revision: Mapped[str] = mapped_column(String(64))  # hash of the observations it was fitted on
     report_json: Mapped[str] = mapped_column(Text)  # cross-validated figures
     created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
+
+
+class StoredReceptorPanel(Base):
+    """A user's virtual receptor panel: receptors as JSON [{"gap_ev": g, "lambda_ev": l or null}, ...]."""
+
+    __tablename__ = "receptor_panel"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(60), unique=True)
+    receptors_json: Mapped[str] = mapped_column(Text)
+    note: Mapped[str | None] = mapped_column(Text)
+    created_by: Mapped[str] = mapped_column(String(100))
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)

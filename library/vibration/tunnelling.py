@@ -116,6 +116,16 @@ def parameters(**overrides) -> dict:
     return out
 
 
+def recorded_settings(summary: dict | None) -> dict:
+    """The settings a tunnelling record was computed with, from its summary (defaults for any missing)."""
+    return parameters(**{k: v for k, v in (summary or {}).items() if k in DEFAULTS})
+
+
+def settings_grid_ev(settings: dict) -> np.ndarray:
+    """The gap grid (eV) of a record computed with `settings`."""
+    return gap_grid_ev(min_ev=settings["min_ev"], max_ev=settings["max_ev"], step_ev=settings["step_ev"])
+
+
 def gap_grid_ev(*, min_ev: float = 0.0, max_ev: float = 0.5, step_ev: float = 0.001) -> np.ndarray:
     """Receptor gaps epsilon (eV): min_ev, min_ev + step_ev, ..., max_ev."""
     count = int(np.floor((max_ev - min_ev) / step_ev + 1e-9)) + 1
@@ -220,7 +230,7 @@ def tunnelling_spectrum(spec, **settings) -> TunnellingSpectrum:
     if not spec.has_ir:
         raise ValueError("this vibration spectrum has no IR intensities; the tunnelling model needs dipole "
                          "derivatives (recompute the vibration record with an engine that gives them)")
-    gaps = gap_grid_ev(min_ev=p["min_ev"], max_ev=p["max_ev"], step_ev=p["step_ev"])
+    gaps = settings_grid_ev(p)
     rate = np.zeros_like(gaps)
     factors = []
     for conformer in spec.conformers:
