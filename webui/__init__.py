@@ -211,6 +211,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         health,
         history,
         jobs,
+        observations,
         pair_classes,
         scorecard,
         search_api,
@@ -220,7 +221,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     auth.init_app(app)
     errors.init_app(app)
     for module in (auth, accounts, browse, curation, jobs, history, substitutes, compare, disagreements, scorecard,
-                   pair_classes, api, search_api, health):
+                   observations, pair_classes, api, search_api, health):
         app.register_blueprint(module.blueprint)
     return app
 

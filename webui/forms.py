@@ -11,6 +11,7 @@ from wtforms import BooleanField, HiddenField, SelectField, StringField, TextAre
 from wtforms.validators import DataRequired, Length, Optional
 
 from library.catalogue.models import MATERIAL_STATUSES, RESTRICTION_KINDS
+from library.catalogue.observations import OBSERVATION_KINDS
 from library.vibration import engines
 
 PROVENANCE_HELP = ("from memory, demo, measured: <how>, computed: <how>, "
@@ -84,6 +85,21 @@ class ImportForm(FlaskForm):
     structure_source = StringField(
         "Source for rows without a structure_source", validators=[Optional(), Length(max=500)],
         description="Leave empty to reject such rows; otherwise e.g. from memory.")
+
+
+class ObservationForm(FlaskForm):
+    file = FileField("File", validators=[FileRequired(message="Choose a CSV file of measured values.")],
+                     description="CSV: material,variable,value (one value per row), or material plus one "
+                                 "column per variable (one material per row).")
+    set_name = StringField("Data set name", validators=[DataRequired(message="Name the data set."),
+                                                        Length(max=100)])
+    kind = SelectField("Kind", choices=list(OBSERVATION_KINDS))
+    source = StringField("Source", validators=[DataRequired(message="Say where the data come from."),
+                                               Length(max=500)],
+                         description="e.g. measured: in-house panel of 12, 2026-05 (" + PROVENANCE_HELP + ")")
+    unit = StringField("Unit", validators=[Optional(), Length(max=40)], description="e.g. intensity 0-10")
+    description = StringField("Description", validators=[Optional(), Length(max=500)])
+    replace = BooleanField("Replace the data set of the same name")
 
 
 class VocabularyForm(FlaskForm):

@@ -165,6 +165,47 @@ def import_observations(session: Session, data: bytes, label: str, *, set_name: 
     return report
 
 
+@dataclass(frozen=True)
+class SetSummary:
+    """What a stored data set holds, for listing."""
+
+    id: int
+    name: str
+    kind: str
+    unit: str | None
+    description: str | None
+    source: str
+    materials: int
+    values: int
+    created_at: object  # datetime
+
+
+def set_summaries(session: Session) -> list[SetSummary]:
+    """Every stored data set with its counts, alphabetically."""
+    from sqlalchemy import func
+
+    counts = dict(session.execute(select(Observation.set_id, func.count()).group_by(Observation.set_id)).all())
+    materials = dict(session.execute(select(Observation.set_id, func.count(func.distinct(Observation.material_id)))
+                                     .group_by(Observation.set_id)).all())
+    return [SetSummary(s.id, s.name, s.kind, s.unit, s.description,
+                       f"{s.source_kind}: {s.source_reference}" if s.source_reference else s.source_kind,
+                       materials.get(s.id, 0), counts.get(s.id, 0), s.created_at)
+            for s in session.scalars(select(ObservationSet).order_by(ObservationSet.name))]
+
+
+def delete_set(session: Session, set_name: str, *, actor: str | None = None) -> int:
+    """Delete a data set and its values (audited); the number of values removed. CurationError when absent."""
+    stored = session.scalar(select(ObservationSet).where(ObservationSet.name == (set_name or "").strip()))
+    if stored is None:
+        names = ", ".join(set_names(session)) or "none yet"
+        raise CurationError(f"no data set named {(set_name or '').strip()!r} (data sets: {names})")
+    removed = session.execute(delete(Observation).where(Observation.set_id == stored.id)).rowcount
+    session.add(AuditEntry(actor=actor or current_actor(), action="delete", entity="observation_set",
+                           entity_id=stored.id, old_value=f"{stored.name}: {removed} values"))
+    session.delete(stored)
+    return removed
+
+
 def set_names(session: Session) -> list[str]:
     """Names of the stored observation data sets, alphabetically."""
     return list(session.scalars(select(ObservationSet.name).order_by(ObservationSet.name)))

@@ -271,6 +271,21 @@ def cmd_observations(args) -> int:
     return 0 if report.stored else 1
 
 
+def cmd_observation_sets(args) -> int:
+    catalogue = open_catalogue(args)
+    if args.action == "delete":
+        with catalogue.transaction() as session:
+            removed = observations.delete_set(session, args.name)
+        print(f"data set {args.name.strip()!r} deleted ({removed} value(s))")
+        return 0
+    with catalogue.reading() as session:
+        rows = [{"name": s.name, "kind": s.kind, "materials": s.materials, "values": s.values, "unit": s.unit or "",
+                 "source": s.source, "description": s.description or ""}
+                for s in observations.set_summaries(session)]
+    emit(rows, ["name", "kind", "materials", "values", "unit", "source", "description"], args.format)
+    return 0
+
+
 def cmd_scorecard(args) -> int:
     from library.search import scorecard  # on use: it imports scipy.stats
     from library.search.evidence import run_scorecard
@@ -445,15 +460,22 @@ def register(commands) -> None:
     p.set_defaults(handler=cmd_flags)
 
     p = commands.add_parser("observations")
-    p.add_argument("action", choices=("import",))
-    p.add_argument("file")
-    p.add_argument("--set", required=True, help="name of the data set")
-    p.add_argument("--kind", choices=observations.OBSERVATION_KINDS, default="panel profile")
-    p.add_argument("--source", required=True, help="provenance, e.g. 'measured: in-house panel, 2026-05'")
-    p.add_argument("--unit")
-    p.add_argument("--description")
-    p.add_argument("--replace", action="store_true", help="replace a data set of the same name")
-    p.set_defaults(handler=cmd_observations)
+    actions = p.add_subparsers(dest="action", required=True)
+    q = actions.add_parser("import", help="import a data set from CSV (all or nothing, with a per-row report)")
+    q.add_argument("file")
+    q.add_argument("--set", required=True, help="name of the data set")
+    q.add_argument("--kind", choices=observations.OBSERVATION_KINDS, default="panel profile")
+    q.add_argument("--source", required=True, help="provenance, e.g. 'measured: in-house panel, 2026-05'")
+    q.add_argument("--unit")
+    q.add_argument("--description")
+    q.add_argument("--replace", action="store_true", help="replace a data set of the same name")
+    q.set_defaults(handler=cmd_observations)
+    q = actions.add_parser("list", help="the stored data sets with their counts")
+    q.add_argument("--format", choices=FORMATS, default="table")
+    q.set_defaults(handler=cmd_observation_sets)
+    q = actions.add_parser("delete", help="delete a data set and its values (audited)")
+    q.add_argument("name")
+    q.set_defaults(handler=cmd_observation_sets)
 
     p = commands.add_parser("scorecard")
     p.add_argument("--observed", default="descriptors", help="'descriptors' (default) or a data set name")

@@ -169,7 +169,8 @@ def test_every_main_page_fits_the_width_without_horizontal_overflow(curator_page
              "compare": f"/compare?a={citral}&b={octanal}", "disagreements": "/disagreements",
              "scorecard": "/scorecard", "vocabulary": "/vocabulary", "jobs": "/jobs",
              "add-material": "/materials/new", "import": "/import", "edit": f"/materials/{citral}/edit",
-             "history": "/history", "pair-classes": "/pairs", "regulatory": f"/materials/{citral}/restrictions"}
+             "history": "/history", "pair-classes": "/pairs", "regulatory": f"/materials/{citral}/restrictions",
+             "observations": "/observations"}
     curator_page.set_viewport_size({"width": width, "height": 900})
     for name, url in pages.items():
         curator_page.goto(url)
