@@ -96,13 +96,51 @@ def pattern(text: str) -> GroupPattern:
     return _compile(text, text)
 
 
+@dataclass(frozen=True)
+class BasePreset:
+    """A product base and the groups it usually attacks. `builtin`: shipped with olibra; `edited`: a
+    curator's stored version (of a built-in preset, or a preset of their own)."""
+
+    name: str
+    groups: tuple[str, ...]
+    why: str
+    source: str
+    builtin: bool = False
+    edited: bool = False
+
+
+def builtin_presets() -> list[BasePreset]:
+    return [BasePreset(name, groups, why, PRESET_SOURCE, builtin=True) for name, (groups, why) in BASE_PRESETS.items()]
+
+
+def find_preset(presets: list[BasePreset], name: str) -> BasePreset:
+    """The preset called `name` (case-insensitive) among `presets`; GroupError lists the known ones."""
+    key = (name or "").strip().lower()
+    for candidate in presets:
+        if candidate.name.lower() == key:
+            return candidate
+    raise GroupError(f"unknown base preset {name!r}; known presets: {', '.join(p.name for p in presets)}")
+
+
 def preset(name: str) -> tuple[str, ...]:
-    """The groups a base preset avoids; GroupError names the unknown preset and lists the known ones."""
-    key = name.strip().lower()
-    for known, (groups, _) in BASE_PRESETS.items():
-        if known.lower() == key:
-            return groups
-    raise GroupError(f"unknown base preset {name!r}; known presets: {', '.join(BASE_PRESETS)}")
+    """The groups a built-in base preset avoids (library.catalogue.base_preset_store has the curators'
+    versions); GroupError names the unknown preset and lists the known ones."""
+    return find_preset(builtin_presets(), name).groups
+
+
+def checked_groups(groups) -> tuple[str, ...]:
+    """Group names or SMARTS for a preset, each checked (GroupError naming the first bad one), in the
+    vocabulary's spelling where it is a vocabulary group, duplicates dropped."""
+    out: list[str] = []
+    for text in groups:
+        if not str(text).strip():
+            continue
+        found = pattern(str(text))
+        if found.name not in out:
+            out.append(found.name)
+    if not out:
+        raise GroupError("a base preset needs at least one functional group to avoid")
+    return tuple(out)
 
 
 def _as_mol(structure: str | Chem.Mol) -> Chem.Mol:

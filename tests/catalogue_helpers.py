@@ -25,6 +25,19 @@ def draft(smiles: str, name: str, **kwargs):
     return curation.draft_material(smiles, name=name, sources=sources, **kwargs)
 
 
+def compute_missing_records(catalogue, *, processes: int = 1):
+    """Compute every missing or stale record of the default plan (real worker processes); the report."""
+    from library import computations
+    from library.catalogue import jobs
+
+    plan = computations.Plan()
+    stamps = computations.stamps(plan)
+    report = jobs.run(catalogue, stamps, computations.worker(plan), jobs.select_materials(catalogue, stamps),
+                      processes=processes)
+    assert not report.failures, report.failures
+    return report
+
+
 def seed_rows(names):
     """The import rows of the named materials of the shipped seed catalogue, in file order."""
     return [row for row in transfer.read_rows(MATERIALS_FILE) if row.fields["name"] in names]

@@ -10,13 +10,12 @@ from pathlib import Path
 import pytest
 from sqlalchemy import func, select
 
-from library import computations
-from library.catalogue import accounts, curation, jobs, transfer
+from library.catalogue import accounts, curation, transfer
 from library.catalogue.database import initialize
 from library.catalogue.models import Material
 from webui.auth import SESSION_ENDPOINTS, WRITE_METHODS
 
-from catalogue_helpers import seed_rows
+from catalogue_helpers import compute_missing_records, seed_rows
 
 PASSWORD = "correct horse battery"
 READER, CURATOR = "rhea", "cora"  # the accounts every web test catalogue has
@@ -80,11 +79,8 @@ def computed_catalogue_template(tmp_path_factory) -> Path:
             curation.load_vocabulary(session)
             report = transfer.import_rows(session, seed_rows(SEARCH_SEED_NAMES), actor="seed")
             assert report.committed and report.count("added") == len(SEARCH_SEED_NAMES)
-        plan = computations.Plan()
-        stamps = computations.stamps(plan)
-        job = jobs.run(catalogue, stamps, computations.worker(plan), jobs.select_materials(catalogue, stamps),
-                       processes=2)
-        assert job.done == len(SEARCH_SEED_NAMES) and not job.failures, job.failures
+        job = compute_missing_records(catalogue, processes=2)
+        assert job.done == len(SEARCH_SEED_NAMES)
         add_web_accounts(catalogue)
     finally:
         catalogue.dispose()

@@ -213,6 +213,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         jobs,
         observations,
         pair_classes,
+        presets,
         scorecard,
         search_api,
         substitutes,
@@ -221,7 +222,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     auth.init_app(app)
     errors.init_app(app)
     for module in (auth, accounts, browse, curation, jobs, history, substitutes, compare, disagreements, scorecard,
-                   observations, pair_classes, api, search_api, health):
+                   observations, presets, pair_classes, api, search_api, health):
         app.register_blueprint(module.blueprint)
     return app
 

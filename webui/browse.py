@@ -6,9 +6,10 @@ from flask import Blueprint, Response, abort, current_app, render_template, requ
 from sqlalchemy.orm import selectinload
 
 from library import depiction, functional_groups
-from library.catalogue import observations, restrictions
+from library.catalogue import mixtures, observations, restrictions
 from library.catalogue.models import Material, MaterialOdor
 from webui import db_session, queries, receptor_views
+from webui.forms import ComponentsForm
 
 blueprint = Blueprint("browse", __name__)
 
@@ -47,7 +48,9 @@ def material(material_id: int):
         job=queries.latest_job_for(session, found.id), flag_kinds=observations.FLAG_KINDS,
         summary_rows=queries.summary_rows, provenance_text=queries.provenance_text,
         regulatory_tag=restrictions.tag,
-        activation=receptor_views.activation_view([found.id], request.args.get("panel")))
+        activation=receptor_views.activation_view([found.id], request.args.get("panel")),
+        components=mixtures.components_of(session, found.id), mixtures=mixtures.mixtures_of(session, found.id),
+        components_form=ComponentsForm())
 
 
 @blueprint.get("/materials/<int:material_id>/depiction.svg")

@@ -18,6 +18,7 @@ from library.errors import OlibraError
 from webui import begin_write, db_session, jobs, queries, write_transaction
 from webui.errors import user_message
 from webui.forms import (
+    ComponentsForm,
     EditMaterialForm,
     ImportForm,
     MaterialForm,
@@ -193,6 +194,29 @@ def material_restrictions(material_id: int):
         material = _material_for_edit(material_id)
     return render_template("curation/restrictions.html", form=form, remove=RemoveForm(), material=material,
                            entries=material.restrictions, describe=restrictions.describe), status
+
+
+@blueprint.post("/materials/<int:material_id>/components")
+@curators_only
+def material_components(material_id: int):
+    """Record the components of a mixture (they replace the recorded ones); every bad key is reported."""
+    from library.catalogue import mixtures
+
+    form = ComponentsForm()
+    if not form.validate():
+        abort(400, description="The form expired; reload the page and try again.")
+    try:
+        with write_transaction() as session:
+            stored = session.get(Material, material_id, with_for_update=True)
+            if stored is None:
+                abort(404, description=f"There is no material #{material_id} any more.")
+            found = mixtures.set_components(session, stored, split_lines(form.components.data),
+                                            actor=current_user.username)
+    except OlibraError as exc:
+        flash(f"Components not changed: {user_message(exc)}", "error")
+    else:
+        flash("Components: " + (", ".join(c.preferred_name for c in found) or "none") + ".", "success")
+    return redirect(url_for("browse.material", material_id=material_id))
 
 
 @blueprint.post("/materials/<int:material_id>/restrictions/<int:restriction_id>/remove")

@@ -21,7 +21,7 @@ from library.errors import OlibraError
 from library.catalogue import observations
 from library.search import disagreement_policy, evidence, metrics, pairs, queries, spectra, substitutes
 from library.search.disagreements import DIRECTIONS, parse_threshold
-from webui import search_index, web_state
+from webui import db_session, search_index, web_state
 from webui.heavy import heavy
 
 MAX_KEY_CHARS = 200
@@ -174,10 +174,13 @@ def substitute_request(args) -> SubstituteRequest:
             raise ArgumentError(f"{', '.join(both)} cannot be both required and excluded; remove it from one list")
     with_groups = groups_argument(args, "with_group")
     without_groups = groups_argument(args, "without_group")
-    for base in [b for b in args.getlist("stable_in") if b.strip()] if hasattr(args, "getlist") else []:
+    bases = [b for b in args.getlist("stable_in") if b.strip()] if hasattr(args, "getlist") else []
+    if bases:
+        from library.catalogue import base_preset_store
+
         try:
-            without_groups += list(functional_groups.preset(base))
-        except functional_groups.GroupError as exc:
+            without_groups += base_preset_store.groups_of(db_session(), bases)
+        except OlibraError as exc:
             raise ArgumentError(str(exc)) from None
     return SubstituteRequest(
         with_groups=with_groups, without_groups=without_groups,

@@ -102,6 +102,24 @@ class ObservationForm(FlaskForm):
     replace = BooleanField("Replace the data set of the same name")
 
 
+class ComponentsForm(FlaskForm):
+    components = TextAreaField("Components", validators=[Optional(), Length(max=4000)],
+                               description="One material per line (name, synonym, CAS RN, InChIKey or id); "
+                                           "empty: no components.")
+
+
+class PresetForm(FlaskForm):
+    name = StringField("Product base", validators=[DataRequired(message="Name the product base."), Length(max=60)],
+                       description="A built-in name replaces that preset with your version.")
+    groups = TextAreaField("Groups to avoid", validators=[DataRequired(message="List at least one group."),
+                                                          Length(max=4000)],
+                           description="One per line: a group name from the list below, or a SMARTS pattern.")
+    why = StringField("Why", validators=[Optional(), Length(max=500)],
+                      description="What the base does to those groups.")
+    source = StringField("Source", validators=[Optional(), Length(max=500)],
+                         description="Where the rule comes from; empty: common practice, no source.")
+
+
 class VocabularyForm(FlaskForm):
     term = StringField("Term", validators=[DataRequired(message="Give the new term."), Length(max=60)])
     family = StringField("Family", validators=[Optional(), Length(max=40)])

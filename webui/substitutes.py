@@ -6,10 +6,11 @@ from __future__ import annotations
 from flask import Blueprint, Response, render_template, request
 
 from library import depiction, functional_groups
+from library.catalogue import base_preset_store
 from library.errors import OlibraError
 from library.search import metrics
 from library.search.spectra import fingerprint_curve
-from webui import charts, explore
+from webui import charts, db_session, explore
 from webui.errors import user_message
 
 blueprint = Blueprint("substitutes", __name__)
@@ -44,7 +45,7 @@ def index():
     status = 400 if error else 200
     return render_template("substitutes/index.html", asked=asked, outcome=outcome, error=error,
                            previews=previews, regulatory=regulatory, metrics=metrics.metrics(indexed=True), score_columns=metrics.names(),
-                           group_names=list(functional_groups.VOCABULARY), base_presets=functional_groups.BASE_PRESETS,
+                           group_names=list(functional_groups.VOCABULARY), base_presets=base_preset_store.presets(db_session()),
                            args=request.args), status
 
 

@@ -385,3 +385,32 @@ class StoredReceptorPanel(Base):
     note: Mapped[str | None] = mapped_column(Text)
     created_by: Mapped[str] = mapped_column(String(100))
     created_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
+
+
+class StoredBasePreset(Base):
+    """A curator's base preset (the groups a product base usually attacks), or a curator's version of a
+    built-in one, which it then replaces: groups as a JSON list of group names or SMARTS."""
+
+    __tablename__ = "base_preset"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(60), unique=True)
+    groups_json: Mapped[str] = mapped_column(Text)
+    why: Mapped[str | None] = mapped_column(Text)
+    source: Mapped[str] = mapped_column(String(500))
+    updated_by: Mapped[str] = mapped_column(String(100))
+    updated_at: Mapped[dt.datetime] = mapped_column(DateTime(timezone=True), default=utc_now)
+
+
+class MaterialComponent(Base):
+    """A recorded mixture and one of its components (both catalogue materials)."""
+
+    __tablename__ = "material_component"
+    __table_args__ = (
+        UniqueConstraint("mixture_id", "component_id", name="uq_material_component_pair"),
+        CheckConstraint("mixture_id <> component_id", name="not_itself"),
+    )
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    mixture_id: Mapped[int] = mapped_column(ForeignKey("material.id", ondelete="CASCADE"), index=True)
+    component_id: Mapped[int] = mapped_column(ForeignKey("material.id", ondelete="CASCADE"), index=True)

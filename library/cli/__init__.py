@@ -45,6 +45,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "export": ("catalogue_commands", "export the catalogue as CSV, SDF or JSON"),
     "vocabulary": ("catalogue_commands", "list or extend the odor descriptor vocabulary"),
     "status": ("catalogue_commands", "retire, reactivate, restrict or unrestrict a material"),
+    "components": ("catalogue_commands", "record or list the components of a mixture (kept out of its substitutes)"),
     "restriction": ("restriction_commands", "add, list or remove a material's recorded restriction entries"),
     "compute": ("compute_commands", "compute shape, vibration and/or tunnelling records (missing or stale ones by default)"),
     "compute-status": ("compute_commands", "count current, stale and missing computed records"),

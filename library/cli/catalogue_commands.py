@@ -91,6 +91,12 @@ def cmd_show(args) -> int:
         ]
         for p in m.provenance:
             lines.append(f"  source of {p.field:<14}{_provenance_text(p.kind, p.reference)}")
+        from library.catalogue import mixtures
+
+        for label, linked in (("components", mixtures.components_of(session, m.id)),
+                              ("component of", mixtures.mixtures_of(session, m.id))):
+            if linked:
+                lines.append(f"  {label:<16}{', '.join(f'#{c.id} {c.preferred_name}' for c in linked)}")
         if m.notes:
             lines.append(f"  notes           {m.notes}")
         stamps = current_stamps()
@@ -234,7 +240,28 @@ def cmd_status(args) -> int:
     return 0
 
 
+def cmd_components(args) -> int:
+    from library.catalogue import mixtures
+
+    catalogue = open_catalogue(args)
+    with catalogue.transaction() as session:
+        mixture = curation.find_material(session, args.mixture)
+        if args.component or args.clear:
+            found = mixtures.set_components(session, mixture, [] if args.clear else args.component)
+        else:
+            found = mixtures.components_of(session, mixture.id)
+        listed = ", ".join(f"#{c.id} {c.preferred_name}" for c in found) or "none recorded"
+        print(f"#{mixture.id} {mixture.preferred_name}: components {listed}")
+    return 0
+
+
 def register(commands) -> None:
+    p = commands.add_parser("components")
+    p.add_argument("mixture", help="the mixture (id, name, synonym, CAS RN or InChIKey)")
+    p.add_argument("component", nargs="*", help="its components; they replace the recorded ones (none: list them)")
+    p.add_argument("--clear", action="store_true", help="record that it has no components")
+    p.set_defaults(handler=cmd_components)
+
     p = commands.add_parser("init")
     p.set_defaults(handler=cmd_init)
 

@@ -60,13 +60,14 @@ def check_terms(catalogue, args) -> None:
     curation.check_odor_terms(args.without_odor or (), known, label="--without-odor", where=where)
 
 
-def _preset_groups(names) -> list[str]:
-    from library import functional_groups
+def _preset_groups(catalogue, names) -> list[str]:
+    """The groups the presets `names` avoid, as the catalogue's curators keep them."""
+    from library.catalogue import base_preset_store
 
-    try:
-        return [g for name in names or () for g in functional_groups.preset(name)]
-    except functional_groups.GroupError as exc:
-        raise OlibraError(str(exc)) from None
+    if not names:
+        return []
+    with catalogue.reading() as session:
+        return base_preset_store.groups_of(session, names)
 
 
 def cmd_search(args) -> int:
@@ -82,7 +83,7 @@ def cmd_search(args) -> int:
         catalogue, args.query, metric=args.metric, weight=args.weight, k=args.k, filters=filters,
         rerank_depth=args.rerank_depth, explain=args.explain, vibration_engine=args.engine,
         include_demo=args.include_demo, with_groups=args.with_group or (),
-        without_groups=list(args.without_group or ()) + list(_preset_groups(args.stable_in)),
+        without_groups=list(args.without_group or ()) + list(_preset_groups(catalogue, args.stable_in)),
         include_own_family=args.include_own_family)
     with catalogue.reading() as session:
         tags = restrictions.tags_by_id(session, [c.material.id for c in outcome.candidates])
@@ -332,14 +333,31 @@ def cmd_metrics(args) -> int:
 
 def cmd_groups(args) -> int:
     """The functional-group vocabulary (name, SMARTS) and the base presets (groups each avoids)."""
+    from library.catalogue import base_preset_store
+
+    catalogue = open_catalogue(args)
+    if args.action == "preset":
+        with catalogue.transaction() as session:
+            if args.preset_action == "save":
+                saved = base_preset_store.save_preset(session, args.name, args.avoid, why=args.why,
+                                                      source=args.source)
+                print(f"base preset {saved.name!r} saved: avoids {', '.join(saved.groups)}")
+            else:
+                restored = base_preset_store.remove_preset(session, args.name)
+                print(f"base preset {args.name.strip()!r} removed"
+                      + ("; the built-in version is in effect again" if restored else ""))
+        return 0
     rows = [{"group": name, "smarts": smarts, "description": text}
             for name, (smarts, text) in functional_groups.VOCABULARY.items()]
     emit(rows, ["group", "smarts", "description"], args.format, max_width=100)
-    presets = [{"base": name, "avoids": ", ".join(groups), "why": why, "source": functional_groups.PRESET_SOURCE}
-               for name, (groups, why) in functional_groups.BASE_PRESETS.items()]
+    with catalogue.reading() as session:
+        found = base_preset_store.presets(session)
+    presets = [{"base": p.name, "avoids": ", ".join(p.groups), "why": p.why, "source": p.source,
+                "kept": "built in" if p.builtin and not p.edited else "edited" if p.builtin else "curators'"}
+               for p in found]
     if args.format == "table":
         print()
-    emit(presets, ["base", "avoids", "why", "source"], args.format, max_width=100)
+    emit(presets, ["base", "avoids", "why", "source", "kept"], args.format, max_width=100)
     if args.format == "table":
         print("presets are rules of thumb for --stable-in, not stability findings: test each candidate in the base")
     return 0
@@ -437,7 +455,20 @@ def register(commands) -> None:
 
     p = commands.add_parser("groups")
     p.add_argument("--format", choices=FORMATS, default="table")
-    p.set_defaults(handler=cmd_groups)
+    p.set_defaults(handler=cmd_groups, action="list")
+    actions = p.add_subparsers(dest="action")
+    preset = actions.add_parser("preset", help="save or remove a base preset (curators' version of the rules)")
+    preset_actions = preset.add_subparsers(dest="preset_action", required=True)
+    q = preset_actions.add_parser("save", help="store a preset, or replace the one of that name (built-in ones too)")
+    q.add_argument("name", help="the product base, e.g. 'hypochlorite bleach'")
+    q.add_argument("--avoid", nargs="+", required=True, metavar="GROUP",
+                   help="functional groups the base attacks: names from `olibra groups` or SMARTS")
+    q.add_argument("--why", help="what the base does to those groups")
+    q.add_argument("--source", help="where the rule comes from (default: common practice, no source)")
+    q.set_defaults(handler=cmd_groups)
+    q = preset_actions.add_parser("remove", help="remove a stored preset (a built-in one comes back)")
+    q.add_argument("name")
+    q.set_defaults(handler=cmd_groups)
 
     p = commands.add_parser("spectrum")
     p.add_argument("material")

@@ -41,6 +41,7 @@ class MaterialInfo:
     logp: float
     demo: bool = False  # every odor descriptor of the material is demo data (an invented entry)
     skeleton: str | None = None  # first InChIKey block: connectivity without stereo or isotopes
+    components: tuple[int, ...] = ()  # ids of its recorded components, when it is a recorded mixture
 
 
 @dataclass(frozen=True)
@@ -159,7 +160,8 @@ def load_index(catalogue, *, vibration_engine: str = DEFAULT_ENGINE, cache_dir: 
 def _from_cache(index: SimilarityIndex, revision: IndexRevision, engine: str) -> CatalogueIndex:
     def infos(name: str) -> list[MaterialInfo]:
         rows = json.loads(str(index.load_extra(name)))
-        return [MaterialInfo(**{**row, "odors": tuple(row["odors"])}) for row in rows]
+        return [MaterialInfo(**{**row, "odors": tuple(row["odors"]), "components": tuple(row.get("components", ()))})
+                for row in rows]
 
     materials = {info.id: info for info in infos("materials")}
     return CatalogueIndex(index, materials, infos("unindexed"), revision, engine, from_cache=True)
@@ -177,16 +179,17 @@ def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int
     from sqlalchemy import select
     from sqlalchemy.orm import selectinload
 
-    from library.catalogue import records
+    from library.catalogue import mixtures, records
     from library.catalogue.models import Material, MaterialOdor
 
     materials = session.scalars(select(Material).options(
         selectinload(Material.odors).selectinload(MaterialOdor.descriptor)).order_by(Material.id))
+    components = mixtures.component_links(session)
     infos = {m.id: MaterialInfo(m.id, m.preferred_name, m.smiles, m.cas_rn,
                                 tuple(sorted(o.descriptor.term for o in m.odors)), m.status, m.restricted,
                                 m.average_mass_g_per_mol, logp(m.smiles),
                                 bool(m.odors) and all(o.source_kind == "demo" for o in m.odors),
-                                (m.inchikey or "").split("-")[0] or None)
+                                (m.inchikey or "").split("-")[0] or None, components.get(m.id, ()))
              for m in materials}
     kinds = needed_kinds()
     state = {kind: records.record_state(session, stamps[kind], include_retired=True) for kind in kinds}

@@ -73,13 +73,18 @@ def skeleton(smiles: str) -> str | None:
 
 def own_family_ids(query: QueryMaterial, cat_index: CatalogueIndex) -> set[int]:
     """Catalogue materials of the query's own family: its stereoisomers and isotopologues (same first
-    InChIKey block; a mixture drawn with unassigned stereo shares it with its isomer components)."""
+    InChIKey block; a mixture drawn with unassigned stereo shares it with its isomer components), and
+    for a catalogue material its recorded components and the recorded mixtures it is part of."""
     block = skeleton(query.smiles)
-    if block is None:
-        return set()
     # the stored InChIKey's first block (an index cached before it was kept falls back to the SMILES)
-    return {i for i, info in cat_index.materials.items()
-            if i != query.material_id and (info.skeleton or skeleton(info.smiles)) == block}
+    family = set() if block is None else {
+        i for i, info in cat_index.materials.items() if (info.skeleton or skeleton(info.smiles)) == block}
+    if query.material_id is not None:
+        own = cat_index.materials.get(query.material_id)
+        family |= set(own.components if own else ())
+        family |= {i for i, info in cat_index.materials.items() if query.material_id in info.components}
+    family.discard(query.material_id)
+    return family & set(cat_index.materials)
 
 
 def group_excluded_ids(cat_index: CatalogueIndex, *, with_groups=(), without_groups=()) -> set[int]:
@@ -219,7 +224,7 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
                      "run `olibra calibrate` again")
     if family:
         names = ", ".join(sorted(cat_index.materials[i].name for i in family))
-        notes.append(f"the query's own family left out (stereoisomers, isotopologues, mixture isomers): {names}; "
+        notes.append(f"the query's own family left out (stereoisomers, isotopologues, mixture isomers and recorded components): {names}; "
                      "bring them back with the own-family switch")
     if cat_index.unindexed:
         notes.append(f"{len(cat_index.unindexed)} material(s) without current records are not searched; "

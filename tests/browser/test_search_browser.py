@@ -170,7 +170,7 @@ def test_every_main_page_fits_the_width_without_horizontal_overflow(curator_page
              "scorecard": "/scorecard", "vocabulary": "/vocabulary", "jobs": "/jobs",
              "add-material": "/materials/new", "import": "/import", "edit": f"/materials/{citral}/edit",
              "history": "/history", "pair-classes": "/pairs", "regulatory": f"/materials/{citral}/restrictions",
-             "observations": "/observations"}
+             "observations": "/observations", "presets": "/presets"}
     curator_page.set_viewport_size({"width": width, "height": 900})
     for name, url in pages.items():
         curator_page.goto(url)
