@@ -14,7 +14,7 @@ from catalogue_helpers import compute_missing_records, draft
 from library import cli, functional_groups
 from library.catalogue import base_preset_store, curation, mixtures
 from library.catalogue.database import Catalogue
-from library.catalogue.models import AuditEntry
+from library.catalogue.models import AuditEntry, Material
 from library.errors import OlibraError
 from library.search import substitutes
 from web_helpers import material_id, on_both_backends
@@ -166,3 +166,53 @@ def test_curators_edit_presets_and_components_on_the_web(catalogue, curator, rea
         assert [m.preferred_name for m in mixtures.components_of(session, citral)] == ["Geranial", "Neral"]
     assert reader.post(f"/materials/{citral}/components", data={"components": "",
                                                                 "csrf_token": reader.token}).status_code == 403
+
+
+@pytest.mark.parametrize("fmt", ["csv", "sdf", "json"])
+def test_recorded_components_travel_through_export_and_import(catalogue, tmp_path, fmt):
+    from library.catalogue import transfer
+    from library.catalogue.database import initialize
+
+    with catalogue.transaction() as session:
+        mixtures.set_components(session, curation.find_material(session, "Citral"), ["Neral", "Geranial"])
+    with catalogue.reading() as session:
+        exported = "".join(transfer.export_materials(session, fmt))
+    path = tmp_path / f"catalogue.{fmt}"
+    path.write_text(exported, encoding="utf-8")
+    fresh = initialize(f"sqlite:///{tmp_path / 'fresh.sqlite'}")
+    try:
+        with fresh.transaction() as session:
+            curation.load_vocabulary(session)
+            report = transfer.import_rows(session, transfer.read_rows(path), actor="test")
+            assert report.committed and not report.rejected
+        with fresh.reading() as session:
+            citral = curation.find_material(session, "Citral")
+            assert [m.preferred_name for m in mixtures.components_of(session, citral.id)] == ["Geranial", "Neral"]
+    finally:
+        fresh.dispose()
+
+
+def test_a_mixture_whose_components_are_not_found_is_not_stored(catalogue, tmp_path):
+    from library.catalogue import transfer
+
+    rows = ("name,smiles,structure_source,components\n"
+            f"Ionone,{ALPHA_IONONE},from memory,beta-Ionone|nothing like it\n"
+            f"beta-Ionone,{BETA_IONONE},from memory,\n")
+    path = tmp_path / "ionones.csv"
+    path.write_text(rows, encoding="utf-8")
+    with catalogue.transaction() as session:
+        refused = transfer.import_rows(session, transfer.read_rows(path), actor="test")
+        assert not refused.committed
+        session.rollback()
+    (mixture_row, component_row) = refused.rows
+    assert mixture_row.status == "rejected" and "components: no material matches 'nothing like it'" in mixture_row.message
+    assert component_row.status == "would be added"
+    with catalogue.transaction() as session:
+        kept = transfer.import_rows(session, transfer.read_rows(path), actor="test", keep_good=True)
+    assert kept.committed and [r.status for r in kept.rows] == ["rejected", "added"]
+    with catalogue.reading() as session:
+        assert session.scalar(select(Material).where(Material.preferred_name == "Ionone")) is None
+        # the taken-out mixture leaves no "create" entry behind; the stored component has its own
+        created = session.scalars(select(AuditEntry.new_value).where(AuditEntry.entity == "material",
+                                                                      AuditEntry.action == "create")).all()
+        assert not [v for v in created if v.startswith("Ionone ")] and [v for v in created if v.startswith("beta-Ionone ")]

@@ -219,6 +219,7 @@ class MaterialDraft:
     status: str = "active"
     restricted: bool = False  # the former yes/no column; an entry 'restricted, not recorded' when no entries
     restrictions: list = field(default_factory=list)  # restrictions.RestrictionEntry
+    components: list[str] = field(default_factory=list)  # keys of its recorded components (library.catalogue.mixtures)
 
 
 def _clean_name(name: str | None, what: str) -> str:

@@ -12,7 +12,9 @@ CSV columns (header row, UTF-8, any order, case-insensitive):
     odor_sources (a JSON object: term -> provenance, for the terms whose source
     differs from odor_source), restrictions (a JSON array of the curator's
     restriction entries: kind, authority, max_percent, category, reference,
-    date, source; see library.catalogue.restrictions)
+    date, source; see library.catalogue.restrictions), components (a recorded
+    mixture's components, '|'-separated: InChIKeys as export writes them, or any
+    key `olibra show` accepts; they may be rows of the same file)
 
 Flat values are plain text; a structured curated field is one column holding
 JSON (odor_sources today; more such columns can be added beside it). Cells a
@@ -41,7 +43,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Iterable, Iterator
 
-from sqlalchemy import select
+from sqlalchemy import delete, select
 from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, selectinload
 
@@ -56,18 +58,18 @@ from library.catalogue.curation import (
 )
 from library.catalogue import restrictions
 from library.catalogue.database import CatalogueBusy, busy_message, is_busy
-from library.catalogue.models import Material, MaterialOdor
+from library.catalogue.models import AuditEntry, Material, MaterialOdor
 from library.errors import OlibraError
 from library.structures import StructureError
 
 CSV_COLUMNS = ("name", "synonyms", "cas", "smiles", "inchi", "formula", "family", "odor",
                "structure_source", "cas_source", "odor_source", "name_source", "notes", "inchikey",
                "status", "restricted", "odor_sources", "synonyms_source", "family_source", "notes_source",
-               "restrictions")
+               "restrictions", "components")
 EXPORT_COLUMNS = ("name", "synonyms", "cas", "smiles", "formula", "family", "odor",
                   "structure_source", "cas_source", "odor_source", "name_source", "notes", "inchikey",
                   "status", "restricted", "odor_sources", "synonyms_source", "family_source", "notes_source",
-                  "restrictions")
+                  "restrictions", "components")
 # Import column -> provenance field it sets.
 SOURCE_COLUMNS = {"structure_source": "structure", "cas_source": "cas_rn", "name_source": "preferred_name",
                   "synonyms_source": "synonyms", "family_source": "olfactive_family", "notes_source": "notes"}
@@ -309,13 +311,14 @@ def _json_record_fields(record: dict) -> dict[str, str]:
         raise TypeError
     fields: dict[str, str] = {}
     for key, value in record.items():
-        if key in ("synonyms", "odor", "odor_sources", "restricted", "restrictions"):
+        if key in ("synonyms", "odor", "odor_sources", "restricted", "restrictions", "components"):
             continue
         if key in CSV_COLUMNS:
             if not isinstance(value, str):
                 raise TypeError
             fields[key] = value
     fields["synonyms"] = "|".join(_strings(record.get("synonyms", [])))
+    fields["components"] = "|".join(_strings(record.get("components", [])))
     odors = record.get("odor", [])
     if not isinstance(odors, list):
         raise TypeError
@@ -436,6 +439,7 @@ def stage_rows(rows: Iterable[InputRow], *, max_heavy_atoms: int | None = None,
             draft.status = row.fields.get("status", "").strip().lower() or "active"
             draft.restricted = _yes_no(row.fields.get("restricted", ""), "restricted")
             draft.restrictions = restrictions.from_records(row.fields.get("restrictions", ""))
+            draft.components = [k.strip() for k in row.fields.get("components", "").split("|") if k.strip()]
             key = draft.structure.inchikey
             if key in seen_in_file:
                 staged.append(StagedRow(row.row, name, repeat_of=seen_in_file[key]))
@@ -471,10 +475,36 @@ def store_staged(session: Session, staged: list[StagedRow], *, keep_good: bool =
                                           outcome.message, outcome.material.id))
         except (StructureError, CurationError) as exc:
             report.rows.append(RowOutcome(item.row, item.name, "rejected", str(exc)))
+    _store_components(session, staged, report, actor=actor)
     report.committed = keep_good or not report.rejected
     if not report.committed:
         report.rows = [_not_stored(r) for r in report.rows]
     return report
+
+
+def _store_components(session: Session, staged: list[StagedRow], report: ImportReport, *,
+                      actor: str | None) -> None:
+    """Record the components of the added mixtures, once every row is in (a component may come later in
+    the file). A mixture whose components cannot all be found is taken out again and its row rejected."""
+    from library.catalogue import mixtures
+
+    outcomes = {o.row: o for o in report.rows}
+    for item in staged:
+        outcome = outcomes.get(item.row)
+        if item.draft is None or not item.draft.components or outcome is None or outcome.status != "added":
+            continue
+        mixture = session.get(Material, outcome.material_id)
+        try:
+            with session.begin_nested():
+                mixtures.set_components(session, mixture, item.draft.components, actor=actor)
+        except CurationError as exc:
+            # added by this import only: its audit entries go with it
+            session.execute(delete(AuditEntry).where(AuditEntry.entity == "material",
+                                                     AuditEntry.entity_id == mixture.id))
+            session.delete(mixture)
+            session.flush()
+            outcome.status, outcome.material_id = "rejected", None
+            outcome.message = f"components: {exc}"
 
 
 def _not_stored(outcome: RowOutcome) -> RowOutcome:
@@ -570,8 +600,9 @@ def _odor_sources_of(material: Material) -> tuple[str, dict[str, str]]:
     return shared, {term: text for term, text in texts.items() if text != shared}
 
 
-def material_fields(material: Material) -> dict[str, str]:
-    """A material as the flat fields of the import format (round-trips through import)."""
+def material_fields(material: Material, *, component_keys: tuple[str, ...] = ()) -> dict[str, str]:
+    """A material as the flat fields of the import format (round-trips through import); a recorded
+    mixture's components are given by their InChIKeys (`component_keys`)."""
     sources = {p.field: str(Source(p.kind, p.reference)) for p in material.provenance}
     odor_source, odor_sources = _odor_sources_of(material)
     fields = {
@@ -588,6 +619,7 @@ def material_fields(material: Material) -> dict[str, str]:
         "status": material.status,
         "restricted": "yes" if material.restricted else "no",
         "restrictions": restrictions.to_text(material),
+        "components": "|".join(component_keys),
         "odor_sources": json.dumps(odor_sources, ensure_ascii=False, sort_keys=True) if odor_sources else "",
     }
     for column, field_name in SOURCE_COLUMNS.items():
@@ -608,7 +640,15 @@ def sdf_data_item(key: str, value: str) -> str:
 
 def export_materials(session: Session, fmt: str, *, include_retired: bool = True) -> Iterator[str]:
     """Yield the catalogue as CSV, SDF or JSON text chunks."""
+    from library.catalogue import mixtures
+
     materials = _materials(session, include_retired=include_retired)
+    links = mixtures.component_links(session)
+    inchikeys = dict(session.execute(select(Material.id, Material.inchikey).where(
+        Material.id.in_({c for components in links.values() for c in components}))).all()) if links else {}
+
+    def fields_of(material):  # with its components, for every format
+        return material_fields(material, component_keys=tuple(inchikeys[c] for c in links.get(material.id, ())))
     if fmt == "csv":
         buffer = io.StringIO()
         writer = csv.DictWriter(buffer, fieldnames=EXPORT_COLUMNS, lineterminator="\n")
@@ -617,7 +657,7 @@ def export_materials(session: Session, fmt: str, *, include_retired: bool = True
         for material in materials:
             buffer.seek(0)
             buffer.truncate()
-            writer.writerow({k: spreadsheet_safe(v) for k, v in material_fields(material).items()})
+            writer.writerow({k: spreadsheet_safe(v) for k, v in fields_of(material).items()})
             yield buffer.getvalue()
     elif fmt == "sdf":
         for material in materials:
@@ -627,7 +667,7 @@ def export_materials(session: Session, fmt: str, *, include_retired: bool = True
             title = material.preferred_name
             lines[0] = "" if title.rstrip() in ("$$$$", "M  END") else title
             text = "\n".join(lines).rstrip("\n") + "\n"
-            for key, value in material_fields(material).items():
+            for key, value in fields_of(material).items():
                 if key in ("smiles",) or not value:
                     continue
                 text += sdf_data_item(key, value)
@@ -635,7 +675,7 @@ def export_materials(session: Session, fmt: str, *, include_retired: bool = True
     elif fmt == "json":
         records = []
         for material in materials:
-            record = material_fields(material)
+            record = fields_of(material)
             del record["odor_source"], record["odor_sources"]
             record.update(id=material.id, inchi=material.inchi,
                           average_mass_g_per_mol=round(material.average_mass_g_per_mol, 4),
@@ -644,6 +684,7 @@ def export_materials(session: Session, fmt: str, *, include_retired: bool = True
                           restrictions=restrictions.as_records(material),
                           restriction_tags=restrictions.tags(material),
                           synonyms=[s.name for s in material.synonyms],
+                          components=[inchikeys[c] for c in links.get(material.id, ())],
                           odor=[{"term": o.descriptor.term, "strength": o.strength,
                                  "source": str(Source(o.source_kind, o.source_reference))}
                                 for o in sorted(material.odors, key=lambda o: o.descriptor.term)])
