@@ -42,7 +42,7 @@ def runner_throughput(plan, names: list[str], *, processes: int | None = None, s
     from sqlalchemy import select
 
     from library import computations
-    from library.catalogue import jobs, transfer
+    from library.catalogue import jobs, seed, transfer
     from library.catalogue.curation import load_vocabulary
     from library.catalogue.database import initialize
     from library.catalogue.models import ComputedRecord
@@ -53,8 +53,7 @@ def runner_throughput(plan, names: list[str], *, processes: int | None = None, s
         try:
             with catalogue.transaction() as session:
                 load_vocabulary(session)
-            rows = [r for r in transfer.read_rows(SEED_MATERIALS) if r.fields.get("name") in wanted]
-            transfer.import_into(catalogue, rows)
+            transfer.import_into(catalogue, seed.seed_rows(wanted, SEED_MATERIALS))
             stamps = computations.stamps(plan)
             chosen = [m for m in jobs.select_materials(catalogue, stamps, which="all") if m[1] in wanted]
             started = time.perf_counter()

@@ -5,8 +5,7 @@ import os
 import pytest
 from sqlalchemy import create_engine, text
 
-from library.catalogue import curation, transfer
-from library.seed_catalog import MATERIALS_FILE
+from library.catalogue import curation
 
 POSTGRES_ENV = "OLIBRA_TEST_POSTGRES_URL"
 TEST_VOCABULARY = {
@@ -39,8 +38,10 @@ def compute_missing_records(catalogue, *, processes: int = 1):
 
 
 def seed_rows(names):
-    """The import rows of the named materials of the shipped seed catalogue, in file order."""
-    return [row for row in transfer.read_rows(MATERIALS_FILE) if row.fields["name"] in names]
+    """The import rows of the named materials of the shipped seed catalogue (library.catalogue.seed)."""
+    from library.catalogue import seed
+
+    return seed.seed_rows(names)
 
 
 def fresh_postgres_url() -> str:

@@ -22,7 +22,7 @@ from library.seed_catalog import MATERIALS_FILE, SEED_DIR, VOCABULARY_FILE
 from library.structures import StructureError, cas_check_digit, check_cas, standardize
 
 COLUMNS = ["name", "synonyms", "cas", "smiles", "formula", "family", "odor",
-           "structure_source", "cas_source", "odor_source", "notes", "restrictions"]
+           "structure_source", "cas_source", "odor_source", "notes", "restrictions", "components"]
 FAMILIES = {"citrus", "green", "floral", "fruity", "herbal", "spicy", "woody", "amber", "musk",
             "balsamic", "marine", "gourmand", "animalic", "aldehydic"}
 ALLOWED_ELEMENTS = {"C", "H", "N", "O", "S"}

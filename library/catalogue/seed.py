@@ -23,6 +23,16 @@ class SeedReport:
         return self.imported.count(status)
 
 
+def seed_rows(names, materials_file=MATERIALS_FILE) -> list[transfer.InputRow]:
+    """The import rows of the named seed materials, in file order; a mixture keeps only the components
+    that are among `names` (the others would not be found, and its row would be refused)."""
+    wanted = set(names)
+    rows = [row for row in transfer.read_rows(materials_file) if row.fields.get("name") in wanted]
+    for row in rows:
+        row.fields["components"] = "|".join(c for c in row.fields.get("components", "").split("|") if c in wanted)
+    return rows
+
+
 def load_seed(catalogue, materials_file=MATERIALS_FILE) -> SeedReport:
     """Import the seed catalogue (idempotent: materials already present are left as they are).
 
