@@ -142,3 +142,50 @@ def test_a_writer_held_up_too_long_gets_a_clear_message(app, catalogue, monkeypa
     finally:
         thread.join()
     holder.dispose()
+
+
+@on_both_backends
+def test_two_coordinators_and_a_curator_at_once_lose_and_duplicate_nothing(app, catalogue, tmp_path):
+    import os
+    import subprocess
+    import sys
+
+    from library import computations
+    from library.catalogue import records
+    from library.catalogue.models import ComputedRecord
+    from sqlalchemy import func, select
+    from web_helpers import SEED_NAMES
+
+    names = list(SEED_NAMES)
+    overlapping = (names[:5], names[3:])  # two coordinators, two materials in common
+    environment = dict(os.environ, OLIBRA_CACHE=str(tmp_path / "cache"))
+    coordinators = [subprocess.Popen([sys.executable, "-m", "library.cli", "--db", catalogue.url, "compute", "all",
+                                      *keys, "--processes", "1", "--quiet"], stdout=subprocess.PIPE,
+                                     stderr=subprocess.PIPE, text=True, env=environment) for keys in overlapping]
+    client = app.test_client()
+    sign_in(client, "cora")
+    ids = {name: material_id(catalogue, name) for name in names}
+    edits, while_computing = [], 0
+    for round_number in range(60):  # a curator keeps editing every material while both compute
+        running = any(p.poll() is None for p in coordinators)
+        if not running and round_number:
+            break
+        for name, number in ids.items():
+            form = edit_form(client, number)
+            form["notes"] = f"edited in round {round_number}"
+            edits.append(client.post(f"/materials/{number}/edit", data=form).status_code)
+            while_computing += running
+    outputs = [p.communicate(timeout=600) for p in coordinators]
+    for process, (out, err) in zip(coordinators, outputs):
+        assert process.returncode == 0 and "Traceback" not in err, (out, err)
+    assert while_computing and set(edits) == {302}, edits  # every edit went through, none told to retry
+    stamps = computations.stamps(computations.Plan())
+    with catalogue.reading() as session:
+        per_record = session.execute(select(ComputedRecord.material_id, ComputedRecord.kind, func.count())
+                                     .group_by(ComputedRecord.material_id, ComputedRecord.kind)).all()
+        assert {(m, k) for m, k, _ in per_record} == {(i, s.kind) for i in ids.values() for s in stamps}
+        assert {n for _, _, n in per_record} == {1}  # no record lost or duplicated
+        for stamp in stamps:
+            assert set(records.record_state(session, stamp).values()) == {"current"}
+        notes = {session.get(Material, i).notes for i in ids.values()}
+    assert len(notes) == 1 and notes.pop().startswith("edited in round")  # the last round's edit of each stands

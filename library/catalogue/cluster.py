@@ -17,12 +17,10 @@ from contextlib import contextmanager
 from typing import Callable, Iterator
 
 from library.catalogue.database import Catalogue
-from library.catalogue.jobs import JobReport, WorkerResult, guarded, store_batch
+from library.catalogue.jobs import BATCH_SECONDS, BATCH_SIZE, BatchWriter, JobReport, WorkerResult, guarded
 from library.catalogue.records import EngineStamp
 from library.errors import OlibraError
 
-BATCH_SIZE = 50  # materials per write transaction
-BATCH_SECONDS = 2.0  # ... or whatever finished within this long, whichever comes first
 TASKS_PER_WORKER_THREAD = 4  # tasks in flight per worker thread: enough to keep workers busy
 
 
@@ -102,8 +100,8 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
         queue = list(reversed(materials))
         in_flight: dict = {}
         finished = distributed.as_completed()
-        batch: list[tuple[int, str, WorkerResult, float]] = []
-        last_write = time.monotonic()
+        writer = BatchWriter(catalogue, stamps, report, keep_current=keep_current, progress=progress,
+                             size=batch_size, seconds=batch_seconds)
 
         def submit_more() -> None:
             while queue and len(in_flight) < window:
@@ -113,17 +111,6 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                                        key=f"olibra-material-{material_id}-{os.getpid()}-{time.time_ns()}")
                 in_flight[future] = (material_id, name, smiles)
                 finished.add(future)
-
-        def write() -> None:
-            nonlocal batch, last_write
-            if batch:
-                write_started = time.perf_counter()
-                report.done += store_batch(catalogue, stamps, batch, keep_current=keep_current)
-                report.write_s += time.perf_counter() - write_started
-                if progress:
-                    progress(len(batch))
-                batch = []
-            last_write = time.monotonic()
 
         try:
             submit_more()
@@ -142,15 +129,14 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                     if progress:
                         progress(1)
                 else:
-                    batch.append((material_id, smiles, result, elapsed))
-                if len(batch) >= batch_size or time.monotonic() - last_write >= batch_seconds:
-                    write()
+                    writer.add(material_id, smiles, result, elapsed)
+                writer.flush_if_due()
                 submit_more()
-            write()
+            writer.flush()
         except KeyboardInterrupt:
             report.interrupted = True
             client.cancel(list(in_flight))
-            write()  # the results already received are whole: keep them
+            writer.flush()  # the results already received are whole: keep them
         finally:
             report.elapsed_s = time.perf_counter() - started
     return report

@@ -192,10 +192,14 @@ NOT_CATALOGUE = (CatalogueState, User, BackgroundJob)
 
 def _bump_revision(session: Session, _flush_context, _instances) -> None:
     """Every flush that changes catalogue rows moves the revision on by one."""
+    if any(not isinstance(o, NOT_CATALOGUE) for o in (*session.new, *session.dirty, *session.deleted)):
+        bump_revision(session)
+
+
+def bump_revision(session: Session) -> None:
+    """Move the catalogue revision on by one in this transaction (once per transaction). Flushes of ORM
+    objects do it themselves; a write through Core statements (bulk record inserts) calls it."""
     if session.info.get("revision_bumped"):
-        return
-    changed = [o for o in (*session.new, *session.dirty, *session.deleted) if not isinstance(o, NOT_CATALOGUE)]
-    if not changed:
         return
     session.info["revision_bumped"] = True
     result = session.execute(update(CatalogueState).values(revision=CatalogueState.revision + 1))

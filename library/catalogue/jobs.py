@@ -1,9 +1,10 @@
 """Long computations over the catalogue, in worker processes.
 
-Workers compute; only the parent process writes. Each finished material is
-committed in its own transaction (all its records or none), so an interrupted
-run (Ctrl-C) leaves no half-written rows and the next run resumes with the
-materials still missing or stale.
+Workers compute; only the parent process writes. Finished materials are
+committed in short transactions of up to BATCH_SIZE materials or BATCH_SECONDS
+(every record of a material or none), so an interrupted run (Ctrl-C) keeps the
+finished materials, leaves no half-written rows, and the next run resumes with
+the materials still missing or stale.
 """
 
 from __future__ import annotations
@@ -24,11 +25,13 @@ from sqlalchemy import select
 from library.catalogue.curation import find_material
 from library.catalogue.database import Catalogue
 from library.catalogue.models import ComputedRecord, Material
-from library.catalogue.records import EngineStamp, is_current, record_state, save_record
+from library.catalogue.records import EngineStamp, is_current, record_state, save_records
 from library.errors import OlibraError
 
 # Worker result: for each kind, (arrays, summary); or an error message.
 WorkerResult = dict[str, tuple[dict, dict]]
+BATCH_SIZE = 50  # materials per write transaction
+BATCH_SECONDS = 2.0  # ... or whatever finished within this long, whichever comes first
 
 
 @dataclass
@@ -125,19 +128,55 @@ def store_batch(catalogue: Catalogue, stamps: list[EngineStamp],
     (a run over the missing and stale records), a material whose records are current by now (another
     coordinator stored them meanwhile) is left as it is: it is written once. Returns how many materials
     were stored."""
-    stored = 0
+    entries = []
     with catalogue.transaction() as session:
+        # one locking read, in id order: two coordinators storing overlapping batches cannot deadlock
+        locked = {m.id: m for m in session.scalars(select(Material).where(
+            Material.id.in_(sorted({item[0] for item in items}))).order_by(Material.id).with_for_update())}
+        done: set[int] = set()
         for material_id, smiles, result, elapsed_s in items:
-            material = session.get(Material, material_id, with_for_update=True)
-            if material is None or material.smiles != smiles:
+            material = locked.get(material_id)
+            if material is None or material.smiles != smiles or material_id in done:
                 continue
             if keep_current and _all_current(session, material, stamps):
                 continue
-            for stamp in stamps:
-                arrays, summary = result[stamp.kind]
-                save_record(session, material, stamp, arrays, summary, elapsed_s=elapsed_s)
-            stored += 1
-    return stored
+            done.add(material_id)
+            entries.extend((material, stamp, *result[stamp.kind], elapsed_s) for stamp in stamps)
+        if entries:
+            save_records(session, entries)
+    return len(done)
+
+
+class BatchWriter:
+    """Finished materials gathered and stored by `store_batch` in short transactions: when `size` are
+    waiting or `seconds` have passed since the last write; `flush()` stores what is waiting."""
+
+    def __init__(self, catalogue: Catalogue, stamps: list[EngineStamp], report: JobReport, *,
+                 keep_current: bool = False, progress: Callable[[int], None] | None = None,
+                 size: int = BATCH_SIZE, seconds: float = BATCH_SECONDS):
+        self.catalogue, self.stamps, self.report = catalogue, stamps, report
+        self.keep_current, self.progress, self.size, self.seconds = keep_current, progress, size, seconds
+        self.waiting: list[tuple[int, str, WorkerResult, float]] = []
+        self.last_write = time.monotonic()
+
+    def add(self, material_id: int, smiles: str, result: WorkerResult, elapsed_s: float) -> None:
+        self.waiting.append((material_id, smiles, result, elapsed_s))
+        self.flush_if_due()
+
+    def flush_if_due(self) -> None:
+        if len(self.waiting) >= self.size or time.monotonic() - self.last_write >= self.seconds:
+            self.flush()
+
+    def flush(self) -> None:
+        if self.waiting:
+            started = time.perf_counter()
+            self.report.done += store_batch(self.catalogue, self.stamps, self.waiting,
+                                            keep_current=self.keep_current)
+            self.report.write_s += time.perf_counter() - started
+            if self.progress:
+                self.progress(len(self.waiting))
+            self.waiting = []
+        self.last_write = time.monotonic()
 
 
 def _all_current(session, material: Material, stamps: list[EngineStamp]) -> bool:
@@ -170,32 +209,34 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                                    initargs=(os.getpid(),))
     pending: dict[Future, tuple[int, str, str]] = {}
     queue = deque(materials)
+    writer = BatchWriter(catalogue, stamps, report, keep_current=keep_current, progress=progress)
     try:
         while queue or pending:
             while queue and len(pending) < 2 * processes:
                 item = queue.popleft()
                 pending[executor.submit(guarded, worker, item[2])] = item
-            finished, _ = wait(pending, return_when=FIRST_COMPLETED)
+            finished, _ = wait(pending, return_when=FIRST_COMPLETED, timeout=writer.seconds)
             for future in finished:
                 material_id, name, smiles = pending.pop(future)
                 try:
                     result, error, elapsed = future.result()
                 except BrokenProcessPool:
+                    writer.flush()
                     raise OlibraError(
                         f"a worker process died while computing #{material_id} {name} (out of memory or an "
                         "engine crash); finished materials were saved; rerun to resume, or skip this material "
                         "by retiring it") from None
                 if error is not None:
                     report.failures.append((material_id, name, error))
+                    if progress:
+                        progress(1)
                 else:
-                    write_started = time.perf_counter()
-                    report.done += store_batch(catalogue, stamps, [(material_id, smiles, result, elapsed)],
-                                               keep_current=keep_current)
-                    report.write_s += time.perf_counter() - write_started
-                if progress:
-                    progress(1)
+                    writer.add(material_id, smiles, result, elapsed)
+            writer.flush_if_due()
+        writer.flush()
     except KeyboardInterrupt:
         report.interrupted = True
+        writer.flush()  # the results already received are whole: keep them
         for future in pending:
             future.cancel()
         for process in list(getattr(executor, "_processes", {}).values()):

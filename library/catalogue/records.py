@@ -8,12 +8,13 @@ recomputed, never silently mixed with fresh ones.
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import json
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from sqlalchemy import delete, select
+from sqlalchemy import delete, insert, select
 from sqlalchemy.orm import Session, selectinload
 
 from library.catalogue.models import ComputedArray, ComputedRecord, Material
@@ -70,21 +71,45 @@ def decode_array(shape: str, data: bytes, dtype: str = ARRAY_DTYPE) -> np.ndarra
 
 
 def save_record(session: Session, material: Material, stamp: EngineStamp, arrays: dict,
-                summary: dict, *, elapsed_s: float | None = None) -> ComputedRecord:
-    """Replace the material's record of this kind and engine with a new one (inside the caller's transaction)."""
-    session.execute(delete(ComputedRecord).where(
-        ComputedRecord.material_id == material.id, ComputedRecord.kind == stamp.kind,
-        ComputedRecord.engine_name == stamp.engine_name))
-    record = ComputedRecord(
-        material_id=material.id, kind=stamp.kind, engine_name=stamp.engine_name,
-        engine_version=stamp.engine_version, parameter_hash=stamp.parameter_hash,
-        structure_inchikey=material.inchikey, elapsed_s=elapsed_s,
-        summary_json=json.dumps(summary, sort_keys=True, default=float))
-    for name, values in arrays.items():
-        shape, data = encode_array(values)
-        record.arrays.append(ComputedArray(name=name, dtype=ARRAY_DTYPE, shape=shape, data=data))
-    session.add(record)
-    return record
+                summary: dict, *, elapsed_s: float | None = None) -> int:
+    """Replace the material's record of this kind and engine with a new one (inside the caller's
+    transaction); the new record's id."""
+    return save_records(session, [(material, stamp, arrays, summary, elapsed_s)])[0]
+
+
+def save_records(session: Session, entries) -> list[int]:
+    """Replace many records at once, (material, stamp, arrays, summary, elapsed_s) each, inside the caller's
+    transaction; the new records' ids, in order. The driver's fast path, not the ORM's unit of work: one
+    DELETE per (kind, engine) for the records replaced, one multi-row INSERT ... RETURNING for the records
+    (SQLAlchemy's insertmanyvalues, in batches) and one executemany for their arrays."""
+    from library.catalogue.database import bump_revision
+
+    if not entries:
+        return []
+    by_stamp: dict[tuple[str, str], set[int]] = {}
+    for material, stamp, *_ in entries:
+        by_stamp.setdefault((stamp.kind, stamp.engine_name), set()).add(material.id)
+    for (kind, engine_name), material_ids in by_stamp.items():
+        session.execute(delete(ComputedRecord).where(
+            ComputedRecord.material_id.in_(sorted(material_ids)), ComputedRecord.kind == kind,
+            ComputedRecord.engine_name == engine_name))
+    computed_at = dt.datetime.now(dt.timezone.utc)
+    ids = list(session.scalars(
+        insert(ComputedRecord).returning(ComputedRecord.id, sort_by_parameter_order=True),
+        [{"material_id": material.id, "kind": stamp.kind, "engine_name": stamp.engine_name,
+          "engine_version": stamp.engine_version, "parameter_hash": stamp.parameter_hash,
+          "structure_inchikey": material.inchikey, "elapsed_s": elapsed_s, "computed_at": computed_at,
+          "summary_json": json.dumps(summary, sort_keys=True, default=float)}
+         for material, stamp, _, summary, elapsed_s in entries]))
+    rows = []
+    for record_id, (_, _, arrays, _, _) in zip(ids, entries):
+        for name, values in arrays.items():
+            shape, data = encode_array(values)
+            rows.append({"record_id": record_id, "name": name, "dtype": ARRAY_DTYPE, "shape": shape, "data": data})
+    if rows:
+        session.execute(insert(ComputedArray), rows)
+    bump_revision(session)
+    return ids
 
 
 def is_current(record: ComputedRecord | None, stamp: EngineStamp, inchikey: str) -> bool:

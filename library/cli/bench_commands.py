@@ -109,6 +109,18 @@ def _oversampling(text: str) -> float:
     return value
 
 
+def cmd_bench_write(args) -> int:
+    from benchmarks import writes
+
+    _header("write", None)
+    try:
+        writes.run(args.db, materials=args.write_materials)
+    except ValueError as exc:
+        print(f"olibra: error: {exc}", file=sys.stderr)
+        return 2
+    return 0
+
+
 def cmd_bench_scorecard(args) -> int:
     from benchmarks import scorecard
 
@@ -118,7 +130,7 @@ def cmd_bench_scorecard(args) -> int:
 
 
 BENCHES = {"index": cmd_bench_index, "scorecard": cmd_bench_scorecard, "compute": cmd_bench_compute, "ensembles": cmd_bench_ensembles, "shape": cmd_bench_shape, "vibration": cmd_bench_vibration, "search": cmd_bench_search,
-            "web": cmd_bench_web, "load": cmd_bench_load, "startup": cmd_bench_startup}
+            "web": cmd_bench_web, "load": cmd_bench_load, "startup": cmd_bench_startup, "write": cmd_bench_write}
 
 
 def cmd_bench(args) -> int:
@@ -144,6 +156,8 @@ def register(commands) -> None:
                         "(measures what a more thorough search buys and costs)")
     p.add_argument("--materials", type=int, default=1000,
                    help="scorecard: materials in the synthetic catalogue (default 1000)")
+    p.add_argument("--write-materials", type=int, default=200,
+                   help="write: seed materials stored in the scratch catalogue (default 200, at most the seed's)")
     p.add_argument("--queries", type=int, default=20, help="search: queries for the overlay recall figure")
     p.add_argument("--skip-catalogue", action="store_true",
                    help="search: skip the recall figure on the real catalogue (--db, with computed records)")
