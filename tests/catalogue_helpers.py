@@ -81,5 +81,5 @@ def interrupt_compute(url, extra_arguments, stored_records, at_least):
     process.send_signal(signal.SIGINT)
     out, err = process.communicate(timeout=120)
     assert process.returncode == 130, (out, err)
-    assert "interrupted" in out and "Traceback" not in err
+    assert "interrupted" in out and "Traceback" not in err, (out, err)
     return command

@@ -32,6 +32,7 @@ from library.errors import OlibraError
 WorkerResult = dict[str, tuple[dict, dict]]
 BATCH_SIZE = 50  # materials per write transaction
 BATCH_SECONDS = 2.0  # ... or whatever finished within this long, whichever comes first
+LOCAL_BATCH_SECONDS = 0.5  # the same for the local worker processes
 
 
 @dataclass
@@ -209,7 +210,10 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                                    initargs=(os.getpid(),))
     pending: dict[Future, tuple[int, str, str]] = {}
     queue = deque(materials)
-    writer = BatchWriter(catalogue, stamps, report, keep_current=keep_current, progress=progress)
+    # on one machine materials finish a few per second: write at least twice a second, so the progress bar
+    # and an interrupted run lose little
+    writer = BatchWriter(catalogue, stamps, report, keep_current=keep_current, progress=progress,
+                         seconds=LOCAL_BATCH_SECONDS)
     try:
         while queue or pending:
             while queue and len(pending) < 2 * processes:
@@ -234,6 +238,7 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
                     writer.add(material_id, smiles, result, elapsed)
             writer.flush_if_due()
         writer.flush()
+        executor.shutdown(wait=True)
     except KeyboardInterrupt:
         report.interrupted = True
         writer.flush()  # the results already received are whole: keep them
@@ -245,8 +250,6 @@ def run(catalogue: Catalogue, stamps: list[EngineStamp], worker: Callable[[str],
     except BaseException:
         executor.shutdown(wait=False, cancel_futures=True)
         raise
-    else:
-        executor.shutdown(wait=True)
     finally:
         report.elapsed_s = time.perf_counter() - started
     return report

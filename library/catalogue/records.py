@@ -123,7 +123,10 @@ def record_state(session: Session, stamp: EngineStamp, *, include_retired: bool 
     if not include_retired:
         query = query.where(Material.status == "active")
     materials = dict(session.execute(query).all())
-    records = {r.material_id: r for r in session.scalars(select(ComputedRecord).where(
+    # the columns staleness needs, as plain rows (no ORM objects, no summaries): cheap for large catalogues
+    records = {r.material_id: r for r in session.execute(select(
+        ComputedRecord.material_id, ComputedRecord.engine_version, ComputedRecord.parameter_hash,
+        ComputedRecord.structure_inchikey).where(
         ComputedRecord.kind == stamp.kind, ComputedRecord.engine_name == stamp.engine_name))}
     state = {}
     for material_id, inchikey in materials.items():
@@ -150,7 +153,7 @@ def load_records(session: Session, kind: str, engine_name: str, *, material_ids=
     return loaded
 
 
-READ_CHUNK = 2000  # materials per query when streaming arrays (also keeps under SQL parameter limits)
+READ_CHUNK = 500  # materials per query when streaming arrays (also keeps under SQL parameter limits)
 
 
 def iter_arrays(session: Session, kind: str, engine_name: str, material_ids, names: tuple[str, ...], *,

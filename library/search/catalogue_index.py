@@ -177,20 +177,26 @@ def _catalogue_state(session, stamps) -> tuple[dict[int, MaterialInfo], list[int
     """Every material's MaterialInfo, the ids of those with current records of every required kind,
     and the record kinds to read (the required ones and each optional one all of those materials have)."""
     from sqlalchemy import select
-    from sqlalchemy.orm import selectinload
 
     from library.catalogue import mixtures, records
-    from library.catalogue.models import Material, MaterialOdor
+    from library.catalogue.models import Material, MaterialOdor, OdorDescriptor
 
-    materials = session.scalars(select(Material).options(
-        selectinload(Material.odors).selectinload(MaterialOdor.descriptor)).order_by(Material.id))
+    # plain rows, not ORM objects: a large catalogue's materials cost only their MaterialInfo
+    odors: dict[int, list[tuple[str, str]]] = {}
+    for material_id, term, source_kind in session.execute(
+            select(MaterialOdor.material_id, OdorDescriptor.term, MaterialOdor.source_kind)
+            .join(OdorDescriptor, OdorDescriptor.id == MaterialOdor.descriptor_id)):
+        odors.setdefault(material_id, []).append((term, source_kind))
     components = mixtures.component_links(session)
-    infos = {m.id: MaterialInfo(m.id, m.preferred_name, m.smiles, m.cas_rn,
-                                tuple(sorted(o.descriptor.term for o in m.odors)), m.status, m.restricted,
-                                m.average_mass_g_per_mol, logp(m.smiles),
-                                bool(m.odors) and all(o.source_kind == "demo" for o in m.odors),
-                                (m.inchikey or "").split("-")[0] or None, components.get(m.id, ()))
-             for m in materials}
+    infos = {}
+    for m in session.execute(select(Material.id, Material.preferred_name, Material.smiles, Material.cas_rn,
+                                    Material.status, Material.restricted, Material.average_mass_g_per_mol,
+                                    Material.inchikey).order_by(Material.id)):
+        own = odors.get(m.id, [])
+        infos[m.id] = MaterialInfo(m.id, m.preferred_name, m.smiles, m.cas_rn, tuple(sorted(t for t, _ in own)),
+                                   m.status, m.restricted, m.average_mass_g_per_mol, logp(m.smiles),
+                                   bool(own) and all(kind == "demo" for _, kind in own),
+                                   (m.inchikey or "").split("-")[0] or None, components.get(m.id, ()))
     kinds = needed_kinds()
     state = {kind: records.record_state(session, stamps[kind], include_retired=True) for kind in kinds}
     required = [kind for kind in kinds if kind not in OPTIONAL_KINDS]
@@ -236,7 +242,10 @@ def _load_features(session, stamps, ready: list[int], infos: dict[int, MaterialI
                 if not complete[name] or not all(p in arrays[feature.record_kind] for p in feature.arrays):
                     complete[name] = False  # some record predates this feature: its metrics are left out
                     continue
-                row = np.asarray(metric_registry.feature_row(name, arrays, infos[material_id].smiles))
+                # in its stored form already (unit rows for the fingerprints), so fit keeps these matrices
+                # instead of copying them
+                raw = np.asarray(metric_registry.feature_row(name, arrays, infos[material_id].smiles), np.float32)
+                row = feature.prepare(raw[None, :], f"{name} of material #{material_id}")[0]
                 if name not in out:
                     out[name] = np.empty((len(ready),) + row.shape, row.dtype)
                 out[name][start + offset] = row

@@ -377,12 +377,13 @@ class SimilarityIndex:
         rng = np.random.default_rng(self.random_state)
         sample = np.sort(rng.choice(n, size=min(n, self.pca_sample_size), replace=False))
         pca = PCA(n_components=int(self.pca_components), svd_solver="auto", random_state=self.random_state)
-        pca.fit(fingerprints[sample])
+        # a sample of every row is the matrix itself: fit on it rather than on a copy of it
+        pca.fit(fingerprints if sample.size == n else fingerprints[sample])
         self.pca_mean_ = pca.mean_.astype(np.float32)
         self.pca_basis_ = np.ascontiguousarray(pca.components_.astype(np.float32))
         self.compressed_ = np.empty((n, self.pca_basis_.shape[0]), np.float32)
         self.row_bias_ = np.empty(n, np.float32)
-        block = 65_536
+        block = 4_096  # rows per step: the temporaries stay a few MB however large the index
         for start in range(0, n, block):
             chunk = fingerprints[start : start + block]
             self.compressed_[start : start + block] = (chunk - self.pca_mean_) @ self.pca_basis_.T

@@ -90,6 +90,8 @@ def unit_rows(value, label: str) -> np.ndarray:
     empty = np.flatnonzero(norms == 0)
     if empty.size:
         raise ValueError(f"{label} rows {empty[:5].tolist()} are all zero; cosine is undefined")
+    if np.allclose(norms, 1.0, rtol=0.0, atol=1e-5):
+        return array  # already unit rows (the index built from the database fills them so): no copy
     return np.ascontiguousarray(array / norms.astype(np.float32)[:, None])
 
 

@@ -16,9 +16,8 @@ from pathlib import Path
 import pytest
 from werkzeug.serving import make_server
 
-from library.catalogue import accounts, curation, transfer
+from library.catalogue import accounts, curation, seed, transfer
 from library.catalogue.database import Catalogue, initialize
-from library.seed_catalog import MATERIALS_FILE
 from webui import create_app
 
 CHROMIUM = Path("/usr/bin/chromium")
@@ -50,7 +49,7 @@ def live_server(tmp_path_factory):
     catalogue = initialize(f"sqlite:///{folder / 'catalogue.sqlite'}")
     with catalogue.transaction() as session:
         curation.load_vocabulary(session)
-        rows = [r for r in transfer.read_rows(MATERIALS_FILE) if r.fields["name"] in SEED_NAMES]
+        rows = seed.seed_rows(SEED_NAMES)
         assert transfer.import_rows(session, rows, actor="seed").count("added") == len(SEED_NAMES)
     with accounts.bookkeeping_sessions(catalogue.engine).begin() as session:
         accounts.create_user(session, "cora", PASSWORD, "curator")
