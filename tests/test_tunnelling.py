@@ -100,10 +100,6 @@ def test_deuteration_moves_the_stretch_peak_by_the_isotope_ratio():
     assert peaks[0] / peaks[1] == pytest.approx(1.36, abs=0.04)  # MMFF94 frequencies: a few per cent
 
 
-def _unit(described):
-    return prepare_feature("tunnelling", described.rate_s)["tunnelling"]
-
-
 def test_mirror_pair_identical_isotopologue_pair_parts_ways():
     r = computations.compute_material(computations.Plan(kinds=("tunnelling",)), "C=C(C)[C@H]1CC=C(C)CC1")
     s = computations.compute_material(computations.Plan(kinds=("tunnelling",)), "C=C(C)[C@@H]1CC=C(C)CC1")
@@ -112,16 +108,17 @@ def test_mirror_pair_identical_isotopologue_pair_parts_ways():
     plan = computations.Plan(kinds=("shape", "tunnelling"))
     h = computations.compute_material(plan, "CCOC(C)=O")
     d = computations.compute_material(plan, "[2H]C([2H])([2H])C([2H])([2H])OC(=O)C([2H])([2H])[2H]")
-    blocks = [Block(prepare_feature("tunnelling", x["tunnelling"][0]["tunnelling_spectrum"])) for x in (h, d)]
+    blocks = [Block(prepare_feature("tunnelling", metrics.feature_row("tunnelling", {"tunnelling": x["tunnelling"][0]}, "")))
+              for x in (h, d)]
     tunnel = float(metrics.get("tunnelling").similarity(*blocks, aligned=True)[0])
     shapes = [Block(prepare_feature("shape", metrics.feature_row("shape", {"shape": x["shape"][0]}, "")))
               for x in (h, d)]
     shape_score = float(metrics.get("shape").similarity(*shapes, aligned=True)[0])
     assert shape_score > 0.99  # isotopologues share geometries by construction
-    # The tunnelling spectrum does part the pair, but with MMFF94's fixed-charge intensities only
-    # slightly: its C-H stretches carry almost no dipole derivative, and the C=O stretch that
-    # dominates the rate barely moves on deuteration (measured: 0.998 against shape 1.000).
-    assert tunnel < shape_score
+    # Deuteration moves every C-H stretch channel by 700-800 cm^-1, more than two line widths
+    # (sqrt(2 lambda k_B T) = 0.039 eV = 318 cm^-1, analytic), so at the gaps those channels fill the
+    # two rates differ by decades: the pair parts ways far beyond float noise (measured: 0.74).
+    assert tunnel < 0.9 < shape_score
     assert not np.allclose(h["tunnelling"][0]["tunnelling_spectrum"], d["tunnelling"][0]["tunnelling_spectrum"])
 
 
@@ -133,3 +130,20 @@ def test_settings_are_checked_and_stamped():
     stamp = {s.kind: s for s in computations.stamps(computations.Plan())}["tunnelling"]
     assert stamp.parameters["tunnelling"]["lambda_ev"] == tunnelling.DEFAULTS["lambda_ev"]
     assert stamp.engine_name == {s.kind: s for s in computations.stamps(computations.Plan())}["vibration"].engine_name
+
+
+def test_tunnelling_metric_reads_decades_above_the_floor():
+    floor = tunnelling.FLOOR_RATE_S
+    rates = np.array([[0.0, floor / 10, floor, 10 * floor, 1e4 * floor], [floor, floor, 1e3 * floor, floor, floor]])
+    decades = tunnelling.decades_above_floor(rates)
+    np.testing.assert_allclose(decades, [[0, 0, 0, 1, 4], [0, 0, 3, 0, 0]])  # log10 by hand
+    rows = np.stack([metrics.feature_row("tunnelling", {"tunnelling": {"tunnelling_spectrum": r}}, "") for r in rates])
+    prepared = prepare_feature("tunnelling", rows)
+    score = metrics.get("tunnelling").similarity(Block(prepared), Block(prepared))
+    from scipy.spatial.distance import cdist  # outside reference for the L1 distance
+
+    expected = 1.0 / (1.0 + cdist(decades, decades, "cityblock") / decades.shape[1])
+    np.testing.assert_allclose(score, expected, rtol=1e-6)
+    assert expected[0, 1] == pytest.approx(1 / (1 + 8 / 5))  # |0|+|0|+|-3|+|1|+|4| = 8 over 5 gaps
+    with pytest.raises(ValueError, match="non-negative"):
+        prepare_feature("tunnelling", -rows)

@@ -37,7 +37,7 @@ from library.search import metrics as metric_registry
 from library.search.metrics import Block, check_weight
 
 RANK_MODES = ("exact", "estimated", "none")
-FORMAT_VERSION = 2
+FORMAT_VERSION = 3
 SHAPE_PROBE_SHARE = 12  # neighbors(): groups probed = clusters / share, unless `probes` is given
 VIBRATION_PROBE_SHARE = 3
 PROPERTY_KEYS = ("molecular_weight", "logp", "descriptors", "status", "restricted")

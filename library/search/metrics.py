@@ -11,8 +11,9 @@ overlay    Gaussian shape Tanimoto of the best rotation-only superposition (J. C
            17, 1653 (1996)); scored on demand from the stored conformers, not from the index
 vibration  cosine of EVA fingerprints (J. Comput.-Aided Mol. Des. 11, 143 (1997)); the
            fingerprints are non-negative, so the cosine lies in 0-1
-tunnelling cosine of phonon-assisted tunnelling spectra (Phys. Rev. Lett. 98, 038101 (2007);
-           library.vibration.tunnelling): a receptor model of a contested hypothesis
+tunnelling ``1 / (1 + mean |a - b|)`` over receptor gaps 0-0.5 eV of the phonon-assisted
+           tunnelling rate in decades above the receptor's floor rate (Phys. Rev. Lett. 98, 038101
+           (2007); library.vibration.tunnelling): a receptor model of a contested hypothesis
 blend      ``w * shape + (1 - w) * vibration``, ``w`` the shape weight in 0-1
 blend-rank ``w * P(shape) + (1 - w) * P(vibration)``, P the percentile (0-1) of a similarity among
            the catalogue's pairs, so the two parts are on one scale and 0.5 is an even mix
@@ -65,6 +66,7 @@ class Feature:
     arrays: tuple[str, ...]
     prepare: Callable[[object, str], np.ndarray]
     derived: Callable[[np.ndarray], dict[str, np.ndarray]] = lambda values: {}
+    from_record: Callable[[np.ndarray], np.ndarray] | None = None  # record arrays -> the feature's values
 
 
 def float_rows(value, label: str) -> np.ndarray:
@@ -133,8 +135,23 @@ def packed_bits(value, label: str) -> np.ndarray:
                      f"got shape {array.shape} dtype {array.dtype}")
 
 
-def _shape_sums(values: np.ndarray) -> dict[str, np.ndarray]:
-    return {"shape_sum": values.sum(axis=1, dtype=np.float32)}
+def non_negative_rows(value, label: str) -> np.ndarray:
+    """A finite, non-negative float32 matrix (rows x values) from one row or many."""
+    array = float_rows(value, label)
+    if (array < 0).any():
+        raise ValueError(f"{label} must be non-negative")
+    return array
+
+
+def _row_sums(name: str) -> Callable[[np.ndarray], dict[str, np.ndarray]]:
+    """Derived row sums ``NAME_sum`` (the one-to-many L1 kernel reads them)."""
+    return lambda values: {f"{name}_sum": values.sum(axis=-1, dtype=np.float32)}
+
+
+def _tunnelling_decades(rate_s: np.ndarray) -> np.ndarray:
+    from library.vibration import tunnelling
+
+    return tunnelling.decades_above_floor(rate_s).astype(np.float32)
 
 
 def _bit_words(values: np.ndarray) -> dict[str, np.ndarray]:
@@ -145,13 +162,14 @@ def _bit_words(values: np.ndarray) -> dict[str, np.ndarray]:
 FEATURES: dict[str, Feature] = {
     feature.name: feature for feature in (
         Feature("shape", "72 shape values: USRCAT (60) and chiral (12) moments, angstrom-based",
-                "shape", ("usrcat", "chiral"), float_rows, _shape_sums),
+                "shape", ("usrcat", "chiral"), float_rows, _row_sums("shape")),
         Feature("fingerprint", "EVA fingerprint of the conformer-averaged harmonic spectrum, unit norm",
                 "vibration", ("fingerprint",), unit_rows),
         Feature("fingerprint_ir", "EVA fingerprint with each mode weighted by its IR intensity, unit norm",
                 "vibration", ("fingerprint_ir",), unit_rows),
-        Feature("tunnelling", "Boltzmann-averaged inelastic tunnelling rate over receptor gaps 0-0.5 eV, unit norm",
-                "tunnelling", ("tunnelling_spectrum",), unit_rows),
+        Feature("tunnelling", "Boltzmann-averaged inelastic tunnelling rate over receptor gaps 0-0.5 eV, in "
+                "decades above the receptor floor rate", "tunnelling", ("tunnelling_spectrum",), non_negative_rows,
+                _row_sums("tunnelling"), from_record=_tunnelling_decades),
         Feature("structure", "Morgan radius-2, 2048-bit fingerprint, packed", None, (), packed_bits, _bit_words),
     )
 }
@@ -163,7 +181,8 @@ def feature_row(name: str, records: Mapping[str, Mapping[str, np.ndarray]], smil
     if feature.record_kind is None:
         return smiles
     arrays = records[feature.record_kind]
-    return np.concatenate([np.asarray(arrays[part], np.float32).ravel() for part in feature.arrays])
+    values = np.concatenate([np.asarray(arrays[part], np.float32).ravel() for part in feature.arrays])
+    return values if feature.from_record is None else feature.from_record(values)
 
 
 def record_arrays(kind: str) -> tuple[str, ...]:
@@ -288,14 +307,17 @@ class Metric:
 
 
 @dataclass(frozen=True)
-class ShapeMetric(Metric):
+class MeanDifferenceMetric(Metric):
+    """``1 / (1 + mean |a - b|)`` over the values of the metric's one feature (the USR form)."""
+
     def similarity(self, query, catalogue, *, aligned=False, weight=DEFAULT_WEIGHT):
-        a, b = query["shape"], catalogue["shape"]
+        name = self.features[0]
+        a, b = query[name], catalogue[name]
         width = a.shape[-1]
         if aligned:
             l1 = np.abs(a - b).sum(axis=-1, dtype=np.float64)
         elif a.shape[0] == 1:
-            l1 = _l1_one_to_many(a[0], b, catalogue.get("shape_sum"))[None, :]
+            l1 = _l1_one_to_many(a[0], b, catalogue.get(f"{name}_sum"))[None, :]
         else:
             from scipy.spatial.distance import cdist
 
@@ -303,8 +325,8 @@ class ShapeMetric(Metric):
         return usr_similarity(l1 / width).astype(np.float32)
 
     def candidate_space(self, index, rows):
-        vectors = index.features_["shape"][rows]
-        # Euclidean proxy for the L1 shape distance: -|q - c|^2 / 2 up to a per-query constant
+        vectors = index.features_[self.features[0]][rows]
+        # Euclidean proxy for the L1 distance: -|q - c|^2 / 2 up to a per-query constant
         return vectors, -0.5 * np.einsum("ij,ij->i", vectors, vectors)
 
 
@@ -590,7 +612,7 @@ def features_of(metric: Metric) -> tuple[str, ...]:
     return tuple(found)
 
 
-register(ShapeMetric(
+register(MeanDifferenceMetric(
     "shape", "USR similarity 1/(1 + mean |a - b|) of USRCAT and chiral moments, Boltzmann-averaged",
     features=("shape",), records=("shape",)))
 register(OverlayMetric(
@@ -609,9 +631,10 @@ register(VibrationMetric(
     "vibration-window", "cosine of EVA fingerprints over 400-2400 cm-1 only, below the X-H stretches that "
     "dominate every organic spectrum", features=("fingerprint",), records=("vibration",),
     window_cm1=(400.0, 2400.0)))
-register(VibrationMetric(
-    "tunnelling", "cosine of phonon-assisted tunnelling spectra over receptor gaps (Phys. Rev. Lett. 98, "
-    "038101 (2007)): a model of a contested hypothesis", features=("tunnelling",), records=("tunnelling",)))
+register(MeanDifferenceMetric(
+    "tunnelling", "1/(1 + mean |a - b|) of phonon-assisted tunnelling rates over receptor gaps, in decades above "
+    "the receptor floor (Phys. Rev. Lett. 98, 038101 (2007)): a model of a contested hypothesis",
+    features=("tunnelling",), records=("tunnelling",)))
 register(BlendMetric(
     "blend", "w * shape + (1 - w) * vibration, w the shape weight (0-1)",
     components=("shape", "vibration"), records=("shape", "vibration"), uses_weight=True))
