@@ -247,6 +247,15 @@ def test_search_commands_end_to_end(searchable, capsys, monkeypatch, tmp_path):
     assert result["scores"]["shape"] > 0.999 and result["scores"]["vibration"] < 0.9
     code, out, _ = run("disagreements", "--format", "csv", "--neighbors", "5")
     assert code == 0 and "Benzaldehyde-d6" in out and "indistinguishable by shape" in out
+    # the tunnelling receptor model as the vibration side: the isotopologue pair stays a telling pair
+    code, out, _ = run("disagreements", "--vibration-metric", "tunnelling", "--format", "json", "--neighbors", "5")
+    rows = {frozenset((r["a"].split(" ", 1)[1], r["b"].split(" ", 1)[1])): r for r in json.loads(out)}
+    isotopologues = rows[frozenset(("Benzaldehyde", "Benzaldehyde-d6"))]
+    assert code == 0 and isotopologues["basis"] == "indistinguishable by shape"
+    assert isotopologues["vibration"] == round(result["scores"]["tunnelling"], 4) < 0.9
+    code, out, _ = run("disagreements", "--vibration-metric", "tunnelling", "--max-vibration", "p5", "--limit", "1")
+    assert code == 0 and re.search(r"tunnelling <= 0\.\d{3} \(p5 of catalogue pairs\)", out)
+    assert "contested hypothesis" in out
     code, out, _ = run("disagreements", "--neighbors", "5", "--max-shape", "p10", "--limit", "1")
     assert code == 0 and re.search(r"thresholds: .*shape <= 0\.\d{3} \(p10 of catalogue pairs\)", out)
     code, _, err = run("disagreements", "--max-shape", "p200")

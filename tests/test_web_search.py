@@ -250,6 +250,21 @@ def test_disagreements_list_both_telling_pairs_with_basis_and_observations(reade
     assert unobserved["observed"] is None and all(r["observed"] is None for r in unobserved["rows"])
 
 
+def test_disagreements_with_the_tunnelling_model_as_the_vibration_side(reader):
+    body = reader.get("/api/disagreements?vibration_metric=tunnelling&max_vibration=p5&per_page=200").get_json()
+    assert body["vibration_metric"] == "tunnelling" and "tunnelling <= " in body["thresholds"]
+    pairs = {frozenset((r["a"]["name"], r["b"]["name"])): r for r in body["rows"]}
+    isotopologues = pairs[frozenset(("Benzaldehyde", "Benzaldehyde-d6 (demo)"))]
+    compared = reader.get("/api/compare?a=Benzaldehyde&b=Benzaldehyde-d6 (demo)").get_json()
+    assert isotopologues["basis"] == "indistinguishable by shape"
+    assert isotopologues["vibration"] == pytest.approx(compared["scores"]["tunnelling"], abs=1e-4)
+    page = reader.get("/disagreements?vibration_metric=tunnelling").text
+    assert "Vibration (tunnelling)" in page and "contested hypothesis" in page
+    assert 'value="tunnelling" selected' in page
+    refused = reader.get("/disagreements?vibration_metric=smell")
+    assert refused.status_code == 400 and "vibration side 'smell' is not one of" in error_text(refused).replace("&#39;", "'")
+
+
 def test_disagreement_thresholds_as_percentiles_are_shown_as_similarities(reader):
     body = reader.get("/api/disagreements?max_shape=p5&min_vibration=p95&direction=vibration-not-shape"
                       "&per_page=200").get_json()

@@ -53,8 +53,17 @@ def index():
     return render_template(
         "disagreements/index.html", asked=asked, rows=rows, label=label, used=used, error=error, total=total, page=page,
         pages=pages, sort=sort, order=order, columns=COLUMNS, directions=DIRECTIONS, sources=sources,
-        flag_kinds=observations.FLAG_KINDS, tally=tally, default_flag_kind=disagreements.default_flag_kind, link=_link,
+        flag_kinds=observations.FLAG_KINDS, tally=tally, vibration_sides=disagreements.VIBRATION_SIDE_METRICS,
+        model_caution=_model_caution(asked), default_flag_kind=disagreements.default_flag_kind, link=_link,
         here=request.full_path.rstrip("?")), 400 if error else 200
+
+
+def _model_caution(asked) -> str | None:
+    if asked.vibration_metric != "tunnelling":
+        return None
+    from library.vibration.tunnelling import CAUTION
+
+    return f"The tunnelling receptor model is {CAUTION}."
 
 
 def _link(endpoint: str = "disagreements.index", **changes) -> str:

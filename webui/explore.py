@@ -20,7 +20,7 @@ from library.catalogue.transfer import spreadsheet_safe
 from library.errors import OlibraError
 from library.catalogue import observations
 from library.search import disagreement_policy, evidence, metrics, pairs, queries, spectra, substitutes
-from library.search.disagreements import DIRECTIONS, parse_threshold
+from library.search.disagreements import DIRECTIONS, VIBRATION_SIDE_METRICS, check_vibration_metric, parse_threshold
 from webui import db_session, search_index, web_state
 from webui.heavy import heavy
 
@@ -314,6 +314,7 @@ class DisagreementRequest:
     direction: str = "both"
     observation: str = "descriptors"
     include_retired: bool = False
+    vibration_metric: str = "vibration"
 
 
 def disagreement_request(args) -> DisagreementRequest:
@@ -339,7 +340,17 @@ def disagreement_request(args) -> DisagreementRequest:
         max_shape=similarity("max_shape", "maximum shape similarity", 0.6),
         k=int(number_argument(args, "k", "neighbors per material", default=20, low=1, high=MAX_NEIGHBORS,
                               integer=True, example=" from 1 to 100")),
-        direction=direction, observation=observation, include_retired=flag_argument(args, "retired"))
+        direction=direction, observation=observation, include_retired=flag_argument(args, "retired"),
+        vibration_metric=vibration_side_argument(args))
+
+
+def vibration_side_argument(args) -> str:
+    """The metric that scores the vibration side of the disagreement list (default EVA)."""
+    name = (args.get("vibration_metric") or "vibration").strip()
+    try:
+        return check_vibration_metric(name)
+    except ValueError:
+        raise ArgumentError(f"vibration side {name[:30]!r} is not one of {', '.join(VIBRATION_SIDE_METRICS)}") from None
 
 
 def find_disagreements(request: DisagreementRequest):
@@ -350,7 +361,7 @@ def find_disagreements(request: DisagreementRequest):
             web_state().catalogue, k=request.k, min_shape=request.min_shape, max_vibration=request.max_vibration,
             min_vibration=request.min_vibration, max_shape=request.max_shape, direction=request.direction,
             observation=None if request.observation == "none" else request.observation,
-            include_retired=request.include_retired, cat_index=cat_index)
+            include_retired=request.include_retired, cat_index=cat_index, vibration_metric=request.vibration_metric)
 
     def compute():
         return heavy("the disagreement list", work, key=("disagreements", request, search_index()[1]))
@@ -362,7 +373,8 @@ def thresholds_used(request: DisagreementRequest) -> str:
     cat_index, _ = search_index()
     return disagreement_policy.describe_thresholds(disagreement_policy.resolved_thresholds(
         cat_index, min_shape=request.min_shape, max_vibration=request.max_vibration,
-        min_vibration=request.min_vibration, max_shape=request.max_shape))
+        min_vibration=request.min_vibration, max_shape=request.max_shape, vibration_metric=request.vibration_metric),
+        vibration_metric=request.vibration_metric)
 
 
 def disagreement_row(row) -> dict:

@@ -59,7 +59,7 @@ def disagreements():
     rows = ordered[(page - 1) * per_page: page * per_page]
     return jsonify(rows=[explore.disagreement_row(r) for r in rows], total=len(ordered), page=page,
                    per_page=per_page, pages=pages, observed=label, thresholds=explore.thresholds_used(asked),
-                   caution=CAUTION)
+                   vibration_metric=asked.vibration_metric, caution=CAUTION)
 
 
 @blueprint.get("/scorecard")

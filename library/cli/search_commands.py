@@ -13,7 +13,7 @@ from library.cli.catalogue_commands import open_catalogue
 from library.cli.output import FORMATS, emit
 from library.errors import OlibraError
 from library.search import metrics
-from library.search.disagreements import DIRECTIONS, sides_with_tally, tally_lines
+from library.search.disagreements import DIRECTIONS, VIBRATION_SIDE_METRICS, sides_with_tally, tally_lines
 from library.search.pairs import compare
 from library.search.substitutes import (
     CAUTION,
@@ -207,11 +207,12 @@ def cmd_disagreements(args) -> int:
     cat_index = load_index(catalogue, **({"vibration_engine": args.engine} if args.engine else {}))
     thresholds = dict(min_shape=args.min_shape, max_vibration=args.max_vibration,
                       min_vibration=args.min_vibration, max_shape=args.max_shape)
-    resolved = resolved_thresholds(cat_index, **thresholds)
-    used = describe_thresholds(resolved)
+    resolved = resolved_thresholds(cat_index, **thresholds, vibration_metric=args.vibration_metric)
+    used = describe_thresholds(resolved, vibration_metric=args.vibration_metric)
     rows, label = find_disagreement_rows(  # the similarities the percentiles resolved to, sampled once
         catalogue, k=args.neighbors, **{name: value for name, (value, _) in resolved.items()}, direction=args.direction,
-        observation=observation, include_retired=args.include_retired, cat_index=cat_index)
+        observation=observation, include_retired=args.include_retired, cat_index=cat_index,
+        vibration_metric=args.vibration_metric)
     table = []
     for r in rows[: args.limit]:
         p = r.pair
@@ -228,6 +229,12 @@ def cmd_disagreements(args) -> int:
         print(f"{len(rows)} pair(s) found, {len(table)} shown"
               + (f"; observed similarity: {label}" if label else ""))
         print(f"thresholds: {used}")
+        if args.vibration_metric != "vibration":
+            print(f"the vibration column is the {args.vibration_metric} metric")
+        if args.vibration_metric == "tunnelling":
+            from library.vibration.tunnelling import CAUTION as MODEL_CAUTION
+
+            print(f"note: the tunnelling receptor model is {MODEL_CAUTION}")
         for line in tally_lines(sides_with_tally([r.pair for r in rows])):
             print(line)
     return 0
@@ -446,6 +453,9 @@ def register(commands) -> None:
                    help="observed similarity: 'descriptors' (default), a data set name, or 'none'")
     p.add_argument("--include-retired", action="store_true")
     p.add_argument("--limit", type=int, default=50)
+    p.add_argument("--vibration-metric", choices=VIBRATION_SIDE_METRICS, default="vibration",
+                   help="the metric that speaks for the vibration hypothesis (default vibration: EVA fingerprints; "
+                        "tunnelling: the receptor model)")
     _add_common(p, weight=False)
     p.set_defaults(handler=cmd_disagreements)
 

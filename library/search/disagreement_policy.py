@@ -33,7 +33,8 @@ class DisagreementRow:
 
 
 def telling_pairs(index: SimilarityIndex, lists, observed, *, observed_alike: float,
-                  observed_unalike: float, handedness_of=None) -> list[tuple[disagreements.Disagreement, str]]:
+                  observed_unalike: float, handedness_of=None,
+                  vibration_metric: str = "vibration") -> list[tuple[disagreements.Disagreement, str]]:
     """Pairs one metric cannot tell apart while the other can: isotopologues (same shape, other
     vibrations) and mirror-image pairs (same vibrations, other handedness).
 
@@ -48,12 +49,12 @@ def telling_pairs(index: SimilarityIndex, lists, observed, *, observed_alike: fl
     if not candidates:
         return []
     scores = index.pair_scores([a for a, _ in candidates], [b for _, b in candidates])
-    alike_spectra = [i for i in range(len(candidates)) if float(scores["vibration"][i]) >= INDISTINGUISHABLE]
+    alike_spectra = [i for i in range(len(candidates)) if float(scores[vibration_metric][i]) >= INDISTINGUISHABLE]
     handedness = (handedness_of([(int(index.ids_[candidates[i][0]]), int(index.ids_[candidates[i][1]]))
                                  for i in alike_spectra]) if handedness_of and alike_spectra else {})
     out = []
     for i, (row_a, row_b) in enumerate(candidates):
-        shape, vibration = float(scores["shape"][i]), float(scores["vibration"][i])
+        shape, vibration = float(scores["shape"][i]), float(scores[vibration_metric][i])
         id_a, id_b = int(index.ids_[row_a]), int(index.ids_[row_b])
         hand = handedness.get((id_a, id_b))
         if shape >= INDISTINGUISHABLE and vibration <= RESOLVED:
@@ -91,21 +92,24 @@ def handedness_scorer(catalogue, cat_index: CatalogueIndex):
     return score
 
 
-def resolved_thresholds(cat_index: CatalogueIndex, **thresholds) -> dict[str, tuple[float, str | None]]:
+def resolved_thresholds(cat_index: CatalogueIndex, *, vibration_metric: str = "vibration",
+                        **thresholds) -> dict[str, tuple[float, str | None]]:
     """The four thresholds as similarities, each with the percentile it was asked as (see
     disagreements.resolve_thresholds); SearchError for a value that is neither."""
     try:
         parsed = {name: disagreements.parse_threshold(value, name.replace("_", " "))
                   for name, value in thresholds.items()}
-        return disagreements.resolve_thresholds(cat_index.index, parsed)
+        return disagreements.resolve_thresholds(cat_index.index, parsed, vibration_metric=vibration_metric)
     except ValueError as exc:
         raise SearchError(str(exc)) from None
 
 
-def describe_thresholds(resolved: dict[str, tuple[float, str | None]]) -> str:
-    """One line: 'shape >= 0.912 (p90), vibration <= 0.600, ...' for the thresholds actually used."""
+def describe_thresholds(resolved: dict[str, tuple[float, str | None]], *, vibration_metric: str = "vibration") -> str:
+    """One line: 'shape >= 0.912 (p90), vibration <= 0.600, ...' for the thresholds actually used
+    (the vibration side named by its metric)."""
     signs = {"min": ">=", "max": "<="}
-    return ", ".join(f"{name.split('_', 1)[1]} {signs[name.split('_', 1)[0]]} {value:.3f}"
+    side = {"shape": "shape", "vibration": vibration_metric}
+    return ", ".join(f"{side[name.split('_', 1)[1]]} {signs[name.split('_', 1)[0]]} {value:.3f}"
                      + (f" ({asked} of catalogue pairs)" if asked else "")
                      for name, (value, asked) in resolved.items())
 
@@ -117,37 +121,48 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float | str = 0
                            observed_alike: float = 0.5, observed_unalike: float = 0.2,
                            include_retired: bool = False, vibration_engine: str | None = None,
                            cat_index: CatalogueIndex | None = None,
-                           noise_rows: int = 20) -> tuple[list[DisagreementRow], str | None]:
+                           noise_rows: int = 20,
+                           vibration_metric: str = "vibration") -> tuple[list[DisagreementRow], str | None]:
     """Catalogue-wide pairs where shape and vibration disagree, with pair flags.
 
     First the telling pairs, which one metric cannot tell apart (similarity >= 0.999) while
     the other can (<= 0.995; for mirror images the handedness metric, below 0.999), by gap; then
     the pairs past the user's thresholds, by gap. The first `noise_rows` rows say whether their gap is
     within conformer noise. A threshold may be a percentile of the catalogue's pairs ('p95').
+    `vibration_metric` (see disagreements.VIBRATION_SIDE_METRICS) scores the vibration side.
     """
     from library.catalogue import observations
 
     if cat_index is None:
         cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
     index = cat_index.index
+    try:
+        disagreements.check_vibration_metric(vibration_metric)
+    except ValueError as exc:
+        raise SearchError(str(exc)) from None
+    if vibration_metric not in index.metrics():
+        raise SearchError(f"the {vibration_metric} metric is not in this catalogue's index: some materials lack "
+                          f"its records; compute them first")
     resolved = resolved_thresholds(cat_index, min_shape=min_shape, max_vibration=max_vibration,
-                                   min_vibration=min_vibration, max_shape=max_shape)
+                                   min_vibration=min_vibration, max_shape=max_shape,
+                                   vibration_metric=vibration_metric)
     min_shape, max_vibration, min_vibration, max_shape = (
         resolved[name][0] for name in ("min_shape", "max_vibration", "min_vibration", "max_shape"))
     observed, label = observed_similarity(catalogue, observation)
     filters = build_filter(include_retired=include_retired, include_restricted=True)
     try:
-        lists = {metric: index.neighbors(metric, k, filters=filters) for metric in ("shape", "vibration")}
+        lists = {side: index.neighbors(metric, k, filters=filters)
+                 for side, metric in (("shape", "shape"), ("vibration", vibration_metric))}
         found = disagreements.find_disagreements(
             index, k=k, min_shape=min_shape, max_vibration=max_vibration, min_vibration=min_vibration,
             max_shape=max_shape, direction=direction, observed=observed, observed_alike=observed_alike,
             observed_unalike=observed_unalike, filters=filters, shape_neighbors=lists["shape"],
-            vibration_neighbors=lists["vibration"])
+            vibration_neighbors=lists["vibration"], vibration_metric=vibration_metric)
     except ValueError as exc:
         raise SearchError(str(exc)) from None
     telling = telling_pairs(index, lists.values(), observed, observed_alike=observed_alike,
                             observed_unalike=observed_unalike,
-                            handedness_of=handedness_scorer(catalogue, cat_index))
+                            handedness_of=handedness_scorer(catalogue, cat_index), vibration_metric=vibration_metric)
     telling = [(p, basis) for p, basis in telling if direction in ("both", p.direction)]
     telling_ids = {(min(p.id_a, p.id_b), max(p.id_a, p.id_b)) for p, _ in telling}
     ordered = sorted(telling, key=lambda item: -item[0].score)
@@ -159,15 +174,17 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float | str = 0
     rows = [DisagreementRow(pair, cat_index.materials[pair.id_a], cat_index.materials[pair.id_b],
                             flags.get((min(pair.id_a, pair.id_b), max(pair.id_a, pair.id_b)), []), basis)
             for pair, basis in ordered]
-    _assess_noise(catalogue, cat_index, rows[:noise_rows])
+    _assess_noise(catalogue, cat_index, rows[:noise_rows], vibration_metric)
     return rows, label
 
 
 NOISE_RESAMPLES = 24
 
 
-def _assess_noise(catalogue, cat_index: CatalogueIndex, rows: list[DisagreementRow]) -> None:
-    """Set each row's `within_noise` from the conformer-resampling spreads of its two scores."""
+def _assess_noise(catalogue, cat_index: CatalogueIndex, rows: list[DisagreementRow],
+                  vibration_metric: str = "vibration") -> None:
+    """Set each row's `within_noise` from the conformer-resampling spreads of its two scores (left
+    unknown when the vibration side's metric is not resampled, as for tunnelling)."""
     from library.search import uncertainty
 
     if not rows:
@@ -181,4 +198,4 @@ def _assess_noise(catalogue, cat_index: CatalogueIndex, rows: list[DisagreementR
         spreads = uncertainty.pair_spreads(a, b)
         if row.pair.handedness is not None and row.pair.direction == disagreements.VIBRATION_NOT_SHAPE:
             spreads["shape"] = 0.0  # the handedness gap: overlays are not resampled, judge by vibration
-        row.within_noise = uncertainty.within_noise(row.pair.score, spreads, ("shape", "vibration"))
+        row.within_noise = uncertainty.within_noise(row.pair.score, spreads, ("shape", vibration_metric))

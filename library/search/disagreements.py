@@ -106,11 +106,24 @@ def parse_threshold(value, label: str) -> float | str:
     return number
 
 
+VIBRATION_SIDE_METRICS = ("vibration", "vibration-ir", "vibration-window", "tunnelling")
+
+
+def check_vibration_metric(name: str) -> str:
+    """The metric that speaks for the vibration hypothesis in a disagreement list, checked."""
+    if name not in VIBRATION_SIDE_METRICS:
+        raise ValueError(f"the vibration side must be one of {', '.join(VIBRATION_SIDE_METRICS)}, got {name!r}")
+    return name
+
+
 def resolve_thresholds(index: SimilarityIndex, thresholds: Mapping[str, float | str], *,
-                       pairs: int = PERCENTILE_PAIRS, seed: int = 0) -> dict[str, tuple[float, str | None]]:
+                       pairs: int = PERCENTILE_PAIRS, seed: int = 0,
+                       vibration_metric: str = "vibration") -> dict[str, tuple[float, str | None]]:
     """{name: (similarity, the percentile it came from or None)} for thresholds named as in
     :data:`THRESHOLD_METRICS`. Percentiles are read from the metric's similarities over `pairs` random
-    distinct catalogue pairs (seeded: the same catalogue gives the same values)."""
+    distinct catalogue pairs (seeded: the same catalogue gives the same values); the vibration
+    thresholds from `vibration_metric`'s."""
+    side = {"shape": "shape", "vibration": check_vibration_metric(vibration_metric)}
     out: dict[str, tuple[float, str | None]] = {}
     wanted = {THRESHOLD_METRICS[n] for n, v in thresholds.items() if isinstance(v, str)}
     scores: dict[str, np.ndarray] = {}
@@ -124,7 +137,7 @@ def resolve_thresholds(index: SimilarityIndex, thresholds: Mapping[str, float | 
         scores = index.pair_scores(a, b)
     for name, value in thresholds.items():
         if isinstance(value, str):
-            metric = THRESHOLD_METRICS[name]
+            metric = side[THRESHOLD_METRICS[name]]
             out[name] = (float(np.percentile(scores[metric].astype(np.float64), float(value[1:]))), value)
         else:
             out[name] = (float(value), None)
@@ -147,6 +160,7 @@ def find_disagreements(
     limit: int | None = None,
     shape_neighbors=None,
     vibration_neighbors=None,
+    vibration_metric: str = "vibration",
 ) -> list[Disagreement]:
     """Disagreeing pairs, strongest first.
 
@@ -159,8 +173,11 @@ def find_disagreements(
     ``observed``: a mapping ``{(id_a, id_b): similarity}`` (either order) or a callable
     ``(id_a, id_b) -> similarity or None``. A pair with observed similarity >=
     ``observed_alike`` counts as observed alike, <= ``observed_unalike`` as unalike.
-    Precomputed :class:`NeighborLists` may be passed to skip the scans.
+    Precomputed :class:`NeighborLists` may be passed to skip the scans. ``vibration_metric`` (one of
+    :data:`VIBRATION_SIDE_METRICS`) scores the vibration side: the EVA fingerprint by default, or
+    the tunnelling receptor model.
     """
+    check_vibration_metric(vibration_metric)
     if direction != "both" and direction not in DIRECTIONS:
         raise ValueError(f"direction must be 'both' or one of {DIRECTIONS}, got {direction!r}")
     for name, value in (
@@ -184,7 +201,7 @@ def find_disagreements(
         lists["shape"] = shape_neighbors if shape_neighbors is not None else index.neighbors("shape", k, filters=filters)
     if VIBRATION_NOT_SHAPE in wanted:
         lists["vibration"] = (
-            vibration_neighbors if vibration_neighbors is not None else index.neighbors("vibration", k, filters=filters)
+            vibration_neighbors if vibration_neighbors is not None else index.neighbors(vibration_metric, k, filters=filters)
         )
     ranks = {metric: _pair_ranks(found) for metric, found in lists.items()}
     pairs = sorted(set().union(*[set(r) for r in ranks.values()])) if ranks else []
@@ -193,7 +210,7 @@ def find_disagreements(
     rows_a = np.array([p[0] for p in pairs], np.int64)
     rows_b = np.array([p[1] for p in pairs], np.int64)
     scores = index.pair_scores(rows_a, rows_b)
-    shape, vibration = scores["shape"].astype(float), scores["vibration"].astype(float)
+    shape, vibration = scores["shape"].astype(float), scores[vibration_metric].astype(float)
     structure = scores.get("structure")
 
     keep = np.zeros(len(pairs), bool)
