@@ -200,6 +200,9 @@ def test_compare_shows_the_mirror_image_pair(reader, catalogue):
     assert body["scores"]["vibration"] == 1.0 and body["bands"]["score"] == 1.0 and not body["bands"]["only_a"]
     assert body["scores"]["handedness"] < 0.999 and 0 < body["volume_ratio"] <= 1.0
     assert body["spreads"]["vibration"] == 0.0 and body["resamples"] > 0
+    fixed = {m for m in body["scores"] if m not in body["spreads"]}
+    said = re.search(r"Not resampled: ([^.]+)\.", text)
+    assert "overlay" in fixed and said and set(said.group(1).split(", ")) == fixed
     assert text.count('class="band-matched"') == len(body["bands"]["matched"])
 
 

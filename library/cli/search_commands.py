@@ -181,8 +181,9 @@ def cmd_compare(args) -> int:
         noise = f"  ± {spread:.4f}" if spread is not None else ""
         print(f"  {metric:<17} {value:.4f}{noise}")
     if result.spreads:
-        print(f"  (± one standard deviation over {result.resamples} conformer resamples; overlay, handedness "
-              "and structure are not resampled)")
+        fixed = ", ".join(m for m in result.scores if m not in result.spreads)
+        print(f"  (± one standard deviation over {result.resamples} conformer resamples"
+              + (f"; not resampled: {fixed})" if fixed else ")"))
     print(f"  (blend weight {result.weight}; overlay Tversky {result.explanation['overlay_tversky']:.4f}, "
           f"volume ratio {result.explanation['volume_ratio']:.3f})")
     print(f"  main bands matched within {bands.tolerance_cm1:g} cm-1: {len(bands.pairs)} "

@@ -14,7 +14,8 @@ re-scoring the pair gives the spread of each score under conformer sampling nois
   keeps vibration 1 and an isotopologue pair shape 1 in every resample.
 
 The spread reported is the standard deviation over resamples, in similarity units (0-1). Metrics
-scored on demand (overlay, handedness) and the 2D structure metric are not resampled.
+scored on demand (overlay, handedness), the 2D structure metric, the tunnelling metric (its record
+keeps only the averaged spectrum) and the percentile blends are not resampled.
 """
 
 from __future__ import annotations
