@@ -427,6 +427,7 @@ class ScorecardRequest:
     permutations: int = SCORECARD_DEFAULTS["permutations"]
     resamples: int = SCORECARD_DEFAULTS["resamples"]
     k: int = SCORECARD_DEFAULTS["k"]
+    include_demo: bool = False
 
 
 def scorecard_request(args) -> ScorecardRequest:
@@ -444,7 +445,7 @@ def scorecard_request(args) -> ScorecardRequest:
                                 f"request; ask for at most {SCORECARD_LIMITS[name]}, or run `olibra scorecard` "
                                 "for more")
         values[name] = value
-    return ScorecardRequest(observation, **values)
+    return ScorecardRequest(observation, **values, include_demo=flag_argument(args, "demo"))
 
 
 def run_scorecard(request: ScorecardRequest):
@@ -453,7 +454,7 @@ def run_scorecard(request: ScorecardRequest):
         cat_index, _ = search_index()
         return evidence.run_scorecard(web_state().catalogue, observation=request.observation, k=request.k,
                                      permutations=request.permutations, resamples=request.resamples,
-                                     cat_index=cat_index)
+                                     cat_index=cat_index, include_demo=request.include_demo)
 
     def compute():
         return heavy("the scorecard", work, key=("scorecard", request, search_index()[1]))

@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 
 from library.cli.catalogue_commands import open_catalogue
-from library.cli.output import FORMATS, emit
+from library.cli.output import DEMO_EVIDENCE_HELP, FORMATS, emit
 
 
 def cmd_calibrate(args) -> int:
@@ -13,7 +13,8 @@ def cmd_calibrate(args) -> int:
     from library.search import calibration
 
     catalogue = open_catalogue(args)
-    result = calibration.calibrate(catalogue, args.observed, name=args.name, folds=args.folds, seed=args.seed)
+    result = calibration.calibrate(catalogue, args.observed, name=args.name, folds=args.folds, seed=args.seed,
+                                   include_demo=args.include_demo)
     try:
         calibration.store(catalogue, result)
     except ValueError as exc:
@@ -38,5 +39,6 @@ def register(commands) -> None:
     p.add_argument("--name", help="name of the stored metric (default calibrated-SOURCE)")
     p.add_argument("--folds", type=int, default=5)
     p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--include-demo", action="store_true", help=DEMO_EVIDENCE_HELP)
     p.add_argument("--format", choices=FORMATS, default="table")
     p.set_defaults(handler=cmd_calibrate)

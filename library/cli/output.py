@@ -10,6 +10,10 @@ from typing import Sequence, TextIO
 FORMATS = ("table", "csv", "json")
 
 
+DEMO_EVIDENCE_HELP = ("count demo entries' invented odor notes (e.g. the deuterated isotopologues) as "
+                      "observations (left out by default)")
+
+
 def _cell(value) -> str:
     if value is None:
         return ""

@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 
 from library.cli.catalogue_commands import open_catalogue
-from library.cli.output import FORMATS, emit
+from library.cli.output import DEMO_EVIDENCE_HELP, FORMATS, emit
 
 BH_NOTE = ("q: Benjamini-Hochberg adjusted over every class x metric tested together; "
            "gap: class mean percentile under the metric minus under the observations (percent points)")
@@ -53,7 +53,8 @@ def cmd_pairs(args) -> int:
         emit(rows, ["name", "pairs", "reaction", "description"], args.format)
         return 0
     names = None if args.name == "all" else [args.name]
-    tests = pair_classes.run_tests(catalogue, names, observed=args.observed, permutations=args.permutations)
+    tests = pair_classes.run_tests(catalogue, names, observed=args.observed, permutations=args.permutations,
+                                   include_demo=args.include_demo)
     if args.format == "json":
         print(json.dumps(tests_json(tests), indent=2, default=str))
         return 0
@@ -73,6 +74,7 @@ def register(commands) -> None:
     test.add_argument("--observed", default="descriptors", metavar="SET|descriptors",
                       help="observed similarity: odor descriptor Jaccard (default) or an observation set")
     test.add_argument("--permutations", type=int, default=999)
+    test.add_argument("--include-demo", action="store_true", help=DEMO_EVIDENCE_HELP)
     test.add_argument("--format", choices=FORMATS, default="table")
     manage = actions.add_parser("class", help="add or remove a user pair class")
     manage_actions = manage.add_subparsers(dest="class_action", metavar="add|remove", required=True)

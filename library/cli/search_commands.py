@@ -10,7 +10,7 @@ from library import functional_groups
 from library.catalogue import curation, observations, restrictions
 from library.catalogue.transfer import ImportFileError
 from library.cli.catalogue_commands import open_catalogue
-from library.cli.output import FORMATS, emit
+from library.cli.output import DEMO_EVIDENCE_HELP, FORMATS, emit
 from library.errors import OlibraError
 from library.search import metrics
 from library.search.disagreements import DIRECTIONS, VIBRATION_SIDE_METRICS, sides_with_tally, tally_lines
@@ -302,7 +302,8 @@ def cmd_scorecard(args) -> int:
     catalogue = open_catalogue(args)
     report, label, notes = run_scorecard(
         catalogue, observation=args.observed, k=args.k, permutations=args.permutations,
-        resamples=args.resamples, weight=args.weight, vibration_engine=args.engine, control_size=args.control_size)
+        resamples=args.resamples, weight=args.weight, vibration_engine=args.engine, control_size=args.control_size,
+        include_demo=args.include_demo)
     data = scorecard.report_json(report)
     if args.format == "json":
         json.dump({"observed": label, **data, "notes": notes}, sys.stdout, indent=2)
@@ -526,5 +527,6 @@ def register(commands) -> None:
     p.add_argument("--resamples", type=int, default=1000)
     p.add_argument("--control-size", action="store_true",
                    help="the partial Mantel test also controls for molecular size (closeness of molecular weight)")
+    p.add_argument("--include-demo", action="store_true", help=DEMO_EVIDENCE_HELP)
     _add_common(p)
     p.set_defaults(handler=cmd_scorecard)

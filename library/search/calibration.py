@@ -150,8 +150,9 @@ def observation_revision(catalogue, source: str) -> str:
 
 
 def calibrate(catalogue, observed: str, *, name: str | None = None, folds: int = FOLDS, seed: int = 0,
-              cat_index=None) -> Calibration:
-    """Learn, cross-validate and return (not store) a calibrated blend for observation source `observed`."""
+              cat_index=None, include_demo: bool = False) -> Calibration:
+    """Learn, cross-validate and return (not store) a calibrated blend for observation source `observed`
+    (demo entries' invented odor notes count only with `include_demo`)."""
     from library.search import metrics
     from library.search.catalogue_index import load_index
     from library.search.errors import SearchError
@@ -159,7 +160,7 @@ def calibrate(catalogue, observed: str, *, name: str | None = None, folds: int =
 
     cat_index = cat_index or load_index(catalogue)
     index = cat_index.index
-    similarity, _ = observed_similarity(catalogue, observed)
+    similarity, _ = observed_similarity(catalogue, observed, include_demo=include_demo)
     ids = [int(i) for i in index.ids_]
     rows_a, rows_b, values = [], [], []
     for i in range(len(ids)):

@@ -20,12 +20,14 @@ def metric_matrices(index: SimilarityIndex, rows: np.ndarray, *, weight: float =
 
 def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, permutations: int = 999,
                   resamples: int = 1000, weight: float = 0.5, seed: int = 0, vibration_engine: str | None = None,
-                  cat_index: CatalogueIndex | None = None, control_size: bool = False):
+                  cat_index: CatalogueIndex | None = None, control_size: bool = False,
+                  include_demo: bool = False):
     """How well each metric predicts observed similarity, side by side (a scorecard.Scorecard: scores,
     paired comparisons, summary), the label of the observed similarity and notes.
 
     The partial Mantel test controls for the structure metric and, with ``control_size``, also for
-    molecular size (closeness of molecular weight, g/mol: similarity -|MW_a - MW_b|)."""
+    molecular size (closeness of molecular weight, g/mol: similarity -|MW_a - MW_b|). Demo entries
+    (invented odor notes) are not observations and are left out unless ``include_demo``."""
     from library.catalogue import curation, observations
     from library.search import scorecard  # on use: it imports scipy.stats (about 0.4 s at start-up)
 
@@ -35,7 +37,12 @@ def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, perm
     notes = []
     descriptor_sets = observed = None
     if observation == DESCRIPTORS:
-        ids = [i for i in index.ids_.tolist() if cat_index.materials[i].odors]
+        ids = [i for i in index.ids_.tolist() if cat_index.materials[i].odors
+               and (include_demo or not cat_index.materials[i].demo)]
+        demo = sum(1 for i in index.ids_.tolist() if cat_index.materials[i].demo)
+        if demo and not include_demo:
+            notes.append(f"{demo} demo entr{'y' if demo == 1 else 'ies'} (invented odor notes) left out; "
+                         "include them on request")
     else:
         with catalogue.reading() as session:
             try:
@@ -57,9 +64,9 @@ def run_scorecard(catalogue, *, observation: str = DESCRIPTORS, k: int = 5, perm
     matrices = metric_matrices(index, rows, weight=weight)
     if observation == DESCRIPTORS:
         descriptor_sets = [set(cat_index.materials[i].odors) for i in ids]
-        label = "odor descriptor Jaccard"
+        label = "odor descriptor Jaccard" + (" (demo notes included)" if include_demo else "")
     else:
-        correlate, label = observed_similarity(catalogue, observation)
+        correlate, label = observed_similarity(catalogue, observation, include_demo=include_demo)
         observed = np.eye(len(ids))
         for x in range(len(ids)):
             for y in range(x + 1, len(ids)):

@@ -379,8 +379,10 @@ def list_classes(catalogue, cat_index=None) -> list[tuple[PairClass, list[tuple[
 
 
 def run_tests(catalogue, names: Sequence[str] | None = None, *, observed: str | None = "descriptors",
-              permutations: int = PERMUTATIONS, seed: int = 0, cat_index=None) -> list[ClassTest]:
-    """Test the named classes (all when None) on the catalogue's index; BH across classes x metrics."""
+              permutations: int = PERMUTATIONS, seed: int = 0, cat_index=None,
+              include_demo: bool = False) -> list[ClassTest]:
+    """Test the named classes (all when None) on the catalogue's index; BH across classes x metrics.
+    Demo entries' invented odor notes count as observations only with `include_demo`."""
     from library.search.catalogue_index import load_index
     from library.search.observed import observed_similarity
 
@@ -389,7 +391,7 @@ def run_tests(catalogue, names: Sequence[str] | None = None, *, observed: str | 
     index = cat_index.index
     chosen = catalogue_classes(catalogue) if names is None else [find_class(catalogue, n) for n in names]
     structures = {i: info.smiles for i, info in cat_index.materials.items()}
-    similarity, label = observed_similarity(catalogue, observed)
+    similarity, label = observed_similarity(catalogue, observed, include_demo=include_demo)
     ids = [int(i) for i in index.ids_]
     tests = []
     for number, pair_class in enumerate(chosen):
