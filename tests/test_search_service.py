@@ -242,6 +242,9 @@ def test_search_commands_end_to_end(searchable, capsys, monkeypatch, tmp_path):
     assert code == 0 and len(hits) == 3 and {"shape_rank", "vibration_rank", "blend", "structure"} <= set(hits[0])
     code, out, _ = run("search", "Vanillin", "--metric", "vibration", "-k", "2")
     assert code == 0 and "caution:" in out and "IFRA" in out and "Ethyl vanillin" in out
+    assert "contested hypothesis" not in out
+    code, out, _ = run("search", "Vanillin", "--metric", "tunnelling", "-k", "2")
+    assert code == 0 and "tunnelling receptor model: a model of a contested hypothesis" in out
     code, out, _ = run("compare", "Benzaldehyde", "Benzaldehyde-d6", "--format", "json")
     result = json.loads(out)
     assert result["scores"]["shape"] > 0.999 and result["scores"]["vibration"] < 0.9

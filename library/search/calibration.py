@@ -231,7 +231,7 @@ def _register(name: str, weights: Mapping[str, float], source: str, revision: st
 
     parts = ", ".join(f"{w:.2f} x P({m})" for m, w in weights.items() if w > 0)
     text = (f"calibrated on {source!r} (observations {revision}): {parts}; P the percentile over the catalogue's pairs"
-            + ("; STALE: its observations changed since, run `olibra calibrate` again" if stale else ""))
+            + ("; STALE: its observations changed since, calibrate it again" if stale else ""))
     return metrics.register_calibrated(name, weights, text, stale=stale)
 
 

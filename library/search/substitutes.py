@@ -221,7 +221,11 @@ def find_substitutes(catalogue, query: str | QueryMaterial, *, metric: str = "bl
                      "left out (include them with the demo switch)")
     if getattr(metric_registry.get(metric), "stale", False):
         notes.append(f"metric {metric} is stale: the observations it was calibrated on changed since; "
-                     "run `olibra calibrate` again")
+                     "calibrate it again")
+    if "tunnelling" in (metric, *metric_registry.get(metric).components):
+        from library.vibration.tunnelling import CAUTION as MODEL_CAUTION
+
+        notes.append(f"the list is ordered through the tunnelling receptor model: {MODEL_CAUTION}")
     if family:
         names = ", ".join(sorted(cat_index.materials[i].name for i in family))
         notes.append(f"the query's own family left out (stereoisomers, isotopologues, mixture isomers and recorded components): {names}; "
