@@ -101,3 +101,18 @@ def test_percentile_thresholds_read_the_catalogue_distribution(planted):
     for bad in ("p-1", "p101", "1.5", "high"):
         with pytest.raises(ValueError, match="percentile|similarity"):
             d.parse_threshold(bad, "minimum shape")
+
+
+def test_a_vibration_side_the_index_cannot_score_is_refused_by_name(planted):
+    from types import SimpleNamespace
+
+    from library.search.disagreement_policy import resolved_thresholds
+    from library.search.errors import SearchError
+
+    fitted = SimpleNamespace(index=planted)  # shape and EVA fingerprints only: no tunnelling feature
+    with pytest.raises(SearchError, match="the tunnelling metric is not in this catalogue's index"):
+        resolved_thresholds(fitted, vibration_metric="tunnelling", max_vibration="p5")
+    with pytest.raises(SearchError, match="the vibration side must be one of vibration, vibration-ir"):
+        resolved_thresholds(fitted, vibration_metric="structure", max_vibration="p5")
+    used = resolved_thresholds(fitted, vibration_metric="vibration", max_vibration="p5")
+    assert used["max_vibration"][1] == "p5" and 0 <= used["max_vibration"][0] <= 1

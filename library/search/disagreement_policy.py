@@ -92,10 +92,23 @@ def handedness_scorer(catalogue, cat_index: CatalogueIndex):
     return score
 
 
+def check_vibration_side(cat_index: CatalogueIndex, vibration_metric: str) -> str:
+    """The vibration side's metric, checked against the list and this index (SearchError otherwise)."""
+    try:
+        disagreements.check_vibration_metric(vibration_metric)
+    except ValueError as exc:
+        raise SearchError(str(exc)) from None
+    if vibration_metric not in cat_index.index.metrics():
+        raise SearchError(f"the {vibration_metric} metric is not in this catalogue's index: some materials lack "
+                          "its records; compute them first")
+    return vibration_metric
+
+
 def resolved_thresholds(cat_index: CatalogueIndex, *, vibration_metric: str = "vibration",
                         **thresholds) -> dict[str, tuple[float, str | None]]:
     """The four thresholds as similarities, each with the percentile it was asked as (see
     disagreements.resolve_thresholds); SearchError for a value that is neither."""
+    check_vibration_side(cat_index, vibration_metric)
     try:
         parsed = {name: disagreements.parse_threshold(value, name.replace("_", " "))
                   for name, value in thresholds.items()}
@@ -136,13 +149,7 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float | str = 0
     if cat_index is None:
         cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
     index = cat_index.index
-    try:
-        disagreements.check_vibration_metric(vibration_metric)
-    except ValueError as exc:
-        raise SearchError(str(exc)) from None
-    if vibration_metric not in index.metrics():
-        raise SearchError(f"the {vibration_metric} metric is not in this catalogue's index: some materials lack "
-                          f"its records; compute them first")
+    check_vibration_side(cat_index, vibration_metric)
     resolved = resolved_thresholds(cat_index, min_shape=min_shape, max_vibration=max_vibration,
                                    min_vibration=min_vibration, max_shape=max_shape,
                                    vibration_metric=vibration_metric)
