@@ -61,9 +61,9 @@ def index():
 def _model_caution(asked) -> str | None:
     if asked.vibration_metric != "tunnelling":
         return None
-    from library.vibration.tunnelling import CAUTION
+    from library.vibration.tunnelling import MODEL_NOTE
 
-    return f"The tunnelling receptor model is {CAUTION}."
+    return f"{MODEL_NOTE[0].upper()}{MODEL_NOTE[1:]}."
 
 
 def _link(endpoint: str = "disagreements.index", **changes) -> str:

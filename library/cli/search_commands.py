@@ -181,7 +181,7 @@ def cmd_compare(args) -> int:
         noise = f"  ± {spread:.4f}" if spread is not None else ""
         print(f"  {metric:<17} {value:.4f}{noise}")
     if result.spreads:
-        fixed = ", ".join(m for m in result.scores if m not in result.spreads)
+        fixed = ", ".join(result.not_resampled)
         print(f"  (± one standard deviation over {result.resamples} conformer resamples"
               + (f"; not resampled: {fixed})" if fixed else ")"))
     print(f"  (blend weight {result.weight}; overlay Tversky {result.explanation['overlay_tversky']:.4f}, "
@@ -233,9 +233,9 @@ def cmd_disagreements(args) -> int:
         if args.vibration_metric != "vibration":
             print(f"the vibration column is the {args.vibration_metric} metric")
         if args.vibration_metric == "tunnelling":
-            from library.vibration.tunnelling import CAUTION as MODEL_CAUTION
+            from library.vibration.tunnelling import MODEL_NOTE
 
-            print(f"note: the tunnelling receptor model is {MODEL_CAUTION}")
+            print(f"note: {MODEL_NOTE}")
         for line in tally_lines(sides_with_tally([r.pair for r in rows])):
             print(line)
     return 0

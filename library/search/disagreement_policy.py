@@ -149,7 +149,6 @@ def find_disagreement_rows(catalogue, *, k: int = 20, min_shape: float | str = 0
     if cat_index is None:
         cat_index = load_index(catalogue, **({"vibration_engine": vibration_engine} if vibration_engine else {}))
     index = cat_index.index
-    check_vibration_side(cat_index, vibration_metric)
     resolved = resolved_thresholds(cat_index, min_shape=min_shape, max_vibration=max_vibration,
                                    min_vibration=min_vibration, max_shape=max_shape,
                                    vibration_metric=vibration_metric)

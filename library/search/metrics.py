@@ -85,9 +85,7 @@ def float_rows(value, label: str) -> np.ndarray:
 
 def unit_rows(value, label: str) -> np.ndarray:
     """Non-negative rows scaled to Euclidean norm 1 (fingerprints: cosine becomes a dot product)."""
-    array = float_rows(value, label)
-    if (array < 0).any():
-        raise ValueError(f"{label} must be non-negative (Gaussian-smoothed spectra)")
+    array = non_negative_rows(value, label, why=" (Gaussian-smoothed spectra)")
     norms = np.sqrt(np.einsum("ij,ij->i", array, array, dtype=np.float64))
     empty = np.flatnonzero(norms == 0)
     if empty.size:
@@ -135,11 +133,12 @@ def packed_bits(value, label: str) -> np.ndarray:
                      f"got shape {array.shape} dtype {array.dtype}")
 
 
-def non_negative_rows(value, label: str) -> np.ndarray:
-    """A finite, non-negative float32 matrix (rows x values) from one row or many."""
+def non_negative_rows(value, label: str, why: str = "") -> np.ndarray:
+    """A finite, non-negative float32 matrix (rows x values) from one row or many; `why` is added to
+    the message when a value is negative."""
     array = float_rows(value, label)
     if (array < 0).any():
-        raise ValueError(f"{label} must be non-negative")
+        raise ValueError(f"{label} must be non-negative{why}")
     return array
 
 

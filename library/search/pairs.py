@@ -54,6 +54,11 @@ class Comparison:
     spreads: dict[str, float] = field(default_factory=dict)
     resamples: int = 0
 
+    @property
+    def not_resampled(self) -> list[str]:
+        """The scored metrics without a spread (scored on demand, 2D, or not resampled), in registry order."""
+        return [m for m in self.scores if m not in self.spreads]
+
 
 def compare(catalogue, key_a: str, key_b: str, *, weight: float = metric_registry.DEFAULT_WEIGHT,
             vibration_engine: str | None = None, cat_index: CatalogueIndex | None = None,

@@ -117,6 +117,7 @@ EV_J = units.ELECTRON_VOLT_J
 BOLTZMANN_EV_PER_K = units.BOLTZMANN_J_PER_K / EV_J
 CM1_TO_EV = units.PLANCK_J_S * units.SPEED_OF_LIGHT_M_PER_S * 100.0 / EV_J  # energy of 1 cm^-1, eV
 CAUTION = "a model of a contested hypothesis (vibrational theory of olfaction), not an established mechanism"
+MODEL_NOTE = f"the tunnelling receptor model is {CAUTION}"  # where a list is scored through the model
 
 
 def parameters(**overrides) -> dict:
